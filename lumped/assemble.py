@@ -1,0 +1,321 @@
+"""Assembly: from the system graph to sparse M, C, K, the support-coupling blocks, the
+nonlinear element tables and the first-order state-space form.
+
+Every matrix comes from the oriented incidence (deflection map) ``D``: the element
+deflections are ``δ = D_b q + D_s u`` for body displacements ``q`` and support
+displacements ``u``, element forces are ``f = k∘δ + c∘δ' + b∘δ''`` (tension
+positive), and the forces on the bodies are ``−D_bᵀ f``. Hence
+
+    M q'' + C q' + K q = −(M_s u'' + C_s u' + K_s u) + P F
+
+with ``M = diag(m) + D_bᵀ diag(b) D_b``, ``C = D_bᵀ diag(c) D_b``,
+``K = D_bᵀ diag(k) D_b`` and the coupling blocks ``X_s = D_bᵀ diag(x) D_s``.
+Everything is built from edge arrays in bulk, never by per-element indexing.
+Nonlinear elements (end stops, one-sided springs, asymmetric and tabulated dampers)
+enter the linear part by their linearisation at static equilibrium and are listed
+apart in :class:`NonlinearElements`, for the stepping engine to correct.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import networkx as nx
+import numpy as np
+import scipy.sparse as sp
+import scipy.sparse.linalg as spla
+
+from lumped.model import Damper, Spring, System
+
+__all__ = ["Matrices", "NonlinearElements", "StateSpace", "assemble", "state_space", "DENSE_LIMIT"]
+
+#: Up to this many bodies, state-space matrices are dense arrays; above, linear operators.
+DENSE_LIMIT = 2000
+
+
+@dataclass(frozen=True)
+class NonlinearElements:
+    """The elements whose force is not linear in deflection and rate, by kind.
+
+    Each ``*_index`` array indexes :attr:`Matrices.element_ids`. Forces are N, tension
+    positive; deflections are measured from static equilibrium.
+
+    - end stops: extra force ``gap_stiffness·(|δ| − gap)·sign δ`` once ``|δ| > gap``;
+    - one-sided springs: ``acts_sign`` +1 for compression only (total force ≤ 0),
+      −1 for tension only (total force ≥ 0);
+    - asymmetric dampers: ``rebound`` coefficient for δ' > 0, ``compression`` for δ' < 0;
+    - curve dampers: points ``curve_velocity[o:o+n]``, ``curve_force[o:o+n]`` with
+      ``o = curve_offset[i]``, ``n = curve_offset[i+1] − o``.
+    """
+
+    end_stop_index: np.ndarray
+    end_stop_gap: np.ndarray
+    end_stop_stiffness: np.ndarray
+    one_sided_index: np.ndarray
+    one_sided_sign: np.ndarray
+    asymmetric_index: np.ndarray
+    asymmetric_rebound: np.ndarray
+    asymmetric_compression: np.ndarray
+    curve_index: np.ndarray
+    curve_offset: np.ndarray
+    curve_velocity: np.ndarray
+    curve_force: np.ndarray
+
+    @property
+    def count(self) -> int:
+        return (
+            len(self.end_stop_index)
+            + len(self.one_sided_index)
+            + len(self.asymmetric_index)
+            + len(self.curve_index)
+        )
+
+
+@dataclass(frozen=True)
+class Matrices:
+    """The assembled system, in SI units, over the free coordinates (the bodies).
+
+    ``body_ids``, ``support_ids`` and ``element_ids`` fix the order of every row and
+    column: ``M[i, j]`` couples ``body_ids[i]`` and ``body_ids[j]``; ``K_s[i, s]`` couples
+    body ``i`` to support ``support_ids[s]``.
+    """
+
+    body_ids: tuple[str, ...]
+    support_ids: tuple[str, ...]
+    element_ids: tuple[str, ...]
+    element_kinds: tuple[str, ...]
+    mass: np.ndarray  # body masses, kg
+    stiffness: np.ndarray  # per element, N/m (0 for dampers and inerters)
+    damping: np.ndarray  # per element, linearised, N·s/m
+    inertance: np.ndarray  # per element, kg
+    preload: np.ndarray  # per element, N
+    D: sp.csr_matrix  # element deflections from body displacements (n_elements × n_bodies)
+    D_s: sp.csr_matrix  # element deflections from support displacements (n_elements × n_supports)
+    M: sp.csr_matrix
+    C: sp.csr_matrix
+    K: sp.csr_matrix
+    M_s: sp.csr_matrix
+    C_s: sp.csr_matrix
+    K_s: sp.csr_matrix
+    force_ids: tuple[str, ...]
+    P: sp.csr_matrix  # body forces from force inputs (n_bodies × n_forces)
+    gravity: float  # m/s²
+    floating: bool  # rigid-body motion allowed (no support needed)
+    nonlinear: NonlinearElements
+
+    @property
+    def n(self) -> int:
+        """Number of free coordinates (bodies)."""
+        return len(self.body_ids)
+
+    @property
+    def mass_is_diagonal(self) -> bool:
+        """True without inerters between bodies: M⁻¹ is then a vector."""
+        return not np.any(self.inertance[self.D.getnnz(axis=1) > 1])
+
+    def body_index(self, body_id: str) -> int:
+        return self.body_ids.index(body_id)
+
+    def element_index(self, element_id: str) -> int:
+        return self.element_ids.index(element_id)
+
+
+def assemble(system: System | nx.MultiGraph) -> Matrices:
+    """Assemble ``system`` (or its graph) into sparse M, C, K and the coupling blocks.
+
+    Reads node attributes ``kind`` ("body" or "support") and ``mass`` (kg), and edge
+    attributes ``kind``, ``between`` (orientation, lower node first), ``order`` (row
+    order; elements without it follow in graph order), ``stiffness``
+    (N/m), ``coefficient`` (linearised, N·s/m), ``inertance`` (kg), ``preload`` (N)
+    and ``item`` (the element dataclass, for the nonlinear tables). Node order is the
+    graph's node order.
+
+    Notes
+    -----
+    Cost is O(bodies + elements) with a handful of sparse products; a 100 000-body
+    chain assembles in a fraction of a second.
+    """
+    graph = system.graph if isinstance(system, System) else system
+    kinds = dict(graph.nodes(data="kind"))
+    body_ids = tuple(n for n, k in kinds.items() if k == "body")
+    support_ids = tuple(n for n, k in kinds.items() if k == "support")
+    body_pos = {n: i for i, n in enumerate(body_ids)}
+    support_pos = {n: i for i, n in enumerate(support_ids)}
+    mass = np.array([graph.nodes[n]["mass"] for n in body_ids], dtype=float)
+
+    edges = list(graph.edges(keys=True, data=True))
+    edges.sort(key=lambda e: e[3].get("order", len(edges)))  # file order; stable otherwise
+    n_e, n_b, n_s = len(edges), len(body_ids), len(support_ids)
+    element_ids = tuple(key for _, _, key, _ in edges)
+    element_kinds = tuple(data["kind"] for _, _, _, data in edges)
+    ends = [data.get("between", (u, v)) for u, v, _, data in edges]
+    stiffness = np.array([d.get("stiffness", 0.0) for *_, d in edges], dtype=float)
+    damping = np.array([d.get("coefficient", 0.0) for *_, d in edges], dtype=float)
+    inertance = np.array([d.get("inertance", 0.0) for *_, d in edges], dtype=float)
+    preload = np.array([d.get("preload", 0.0) for *_, d in edges], dtype=float)
+
+    D = _incidence(ends, body_pos, n_e, n_b)
+    D_s = _incidence(ends, support_pos, n_e, n_s)
+    Dt = D.T.tocsr()
+
+    def congruence(values: np.ndarray, right: sp.csr_matrix) -> sp.csr_matrix:
+        return (Dt @ sp.diags_array(values) @ right).tocsr()
+
+    M = (sp.diags_array(mass) + congruence(inertance, D)).tocsr()
+    force_ids, P = _force_map(system, body_pos)
+    return Matrices(
+        body_ids=body_ids,
+        support_ids=support_ids,
+        element_ids=element_ids,
+        element_kinds=element_kinds,
+        mass=mass,
+        stiffness=stiffness,
+        damping=damping,
+        inertance=inertance,
+        preload=preload,
+        D=D,
+        D_s=D_s,
+        M=M,
+        C=congruence(damping, D),
+        K=congruence(stiffness, D),
+        M_s=congruence(inertance, D_s),
+        C_s=congruence(damping, D_s),
+        K_s=congruence(stiffness, D_s),
+        force_ids=force_ids,
+        P=P,
+        gravity=float(graph.graph.get("gravity", 9.81)),
+        floating=bool(graph.graph.get("floating", False)),
+        nonlinear=_nonlinear_tables([d.get("item") for *_, d in edges]),
+    )
+
+
+def _incidence(ends, position: dict, n_rows: int, n_cols: int) -> sp.csr_matrix:
+    """Signed incidence of element ends on the nodes in ``position``: −1 at the lower
+    end ``a``, +1 at the upper end ``b`` (δ = x_b − x_a)."""
+    rows, cols, signs = [], [], []
+    for row, (a, b) in enumerate(ends):
+        for node, sign in ((a, -1.0), (b, 1.0)):
+            col = position.get(node)
+            if col is not None:
+                rows.append(row)
+                cols.append(col)
+                signs.append(sign)
+    return sp.csr_matrix(
+        (np.array(signs), (np.array(rows, dtype=np.int64), np.array(cols, dtype=np.int64))),
+        shape=(n_rows, n_cols),
+    )
+
+
+def _force_map(system, body_pos: dict) -> tuple[tuple[str, ...], sp.csr_matrix]:
+    forces = system.forces if isinstance(system, System) else {}
+    ids = tuple(forces)
+    rows = [body_pos[f.on] for f in forces.values()]
+    P = sp.csr_matrix(
+        ([f.scale for f in forces.values()], (rows, list(range(len(ids))))),
+        shape=(len(body_pos), len(ids)),
+    )
+    return ids, P
+
+
+def _nonlinear_tables(items: list) -> NonlinearElements:
+    stop, sided, asym, curve = [], [], [], []
+    for index, item in enumerate(items):
+        if isinstance(item, Spring):
+            if item.gap is not None:
+                stop.append((index, item.gap, item.gap_stiffness))
+            if item.acts != "both":
+                sided.append((index, 1.0 if item.acts == "compression" else -1.0))
+        elif isinstance(item, Damper):
+            if item.rebound is not None:
+                asym.append((index, item.rebound, item.compression))
+            elif item.curve is not None:
+                curve.append((index, item.curve))
+
+    def column(rows, k, dtype=float):
+        return np.array([r[k] for r in rows], dtype=dtype)
+
+    offsets = np.cumsum([0] + [len(c) for _, c in curve]).astype(np.int64)
+    return NonlinearElements(
+        end_stop_index=column(stop, 0, np.int64),
+        end_stop_gap=column(stop, 1),
+        end_stop_stiffness=column(stop, 2),
+        one_sided_index=column(sided, 0, np.int64),
+        one_sided_sign=column(sided, 1),
+        asymmetric_index=column(asym, 0, np.int64),
+        asymmetric_rebound=column(asym, 1),
+        asymmetric_compression=column(asym, 2),
+        curve_index=column(curve, 0, np.int64),
+        curve_offset=offsets,
+        curve_velocity=np.array([p[0] for _, c in curve for p in c], dtype=float),
+        curve_force=np.array([p[1] for _, c in curve for p in c], dtype=float),
+    )
+
+
+# --------------------------------------------------------------------------- state space
+
+
+@dataclass(frozen=True)
+class StateSpace:
+    """``x' = A x + B w`` with ``x = [q, v]`` (m, m/s; bodies in ``body_ids`` order) and
+    ``w = [u, u', u'', F]``: support displacement (m), velocity (m/s) and acceleration
+    (m/s²) for each support, then each force input (its value before ``scale``, N).
+
+    ``A`` and ``B`` are dense arrays up to :data:`DENSE_LIMIT` bodies and
+    :class:`scipy.sparse.linalg.LinearOperator` above.
+    """
+
+    A: np.ndarray | spla.LinearOperator
+    B: np.ndarray | spla.LinearOperator
+    state_labels: tuple[str, ...]
+    input_labels: tuple[str, ...]
+
+
+def mass_solver(matrices: Matrices):
+    """A function applying M⁻¹ to a vector or matrix: a division for a diagonal M, a
+    sparse LU solve (factored once) when inerters couple the bodies."""
+    if matrices.mass_is_diagonal:
+        inverse = 1.0 / matrices.M.diagonal()
+        return lambda rhs: (inverse[:, None] * rhs) if rhs.ndim == 2 else inverse * rhs
+    lu = spla.splu(matrices.M.tocsc())
+    return lambda rhs: lu.solve(np.asarray(rhs, dtype=float))
+
+
+def state_space(matrices: Matrices, dense: bool | None = None) -> StateSpace:
+    """The first-order form of the linearised system; ``dense`` defaults to
+    ``matrices.n <= DENSE_LIMIT``."""
+    n, n_s, n_f = matrices.n, len(matrices.support_ids), len(matrices.force_ids)
+    dense = n <= DENSE_LIMIT if dense is None else dense
+    solve = mass_solver(matrices)
+    coupling = sp.hstack([-matrices.K_s, -matrices.C_s, -matrices.M_s, matrices.P]).tocsr()
+    n_w = coupling.shape[1]
+    labels = tuple(f"{b}.displacement" for b in matrices.body_ids) + tuple(
+        f"{b}.velocity" for b in matrices.body_ids
+    )
+    inputs = tuple(
+        f"{s}.{q}"
+        for q in ("displacement", "velocity", "acceleration")
+        for s in matrices.support_ids
+    ) + tuple(f"{f}.force" for f in matrices.force_ids)
+    assert n_w == 3 * n_s + n_f
+    if dense:
+        A = np.zeros((2 * n, 2 * n))
+        A[:n, n:] = np.eye(n)
+        A[n:, :n] = -solve(matrices.K.toarray())
+        A[n:, n:] = -solve(matrices.C.toarray())
+        B = np.zeros((2 * n, n_w))
+        B[n:, :] = solve(coupling.toarray())
+        return StateSpace(A, B, labels, inputs)
+    K, C = matrices.K, matrices.C
+
+    def a_matvec(x):
+        x = np.asarray(x, dtype=float).ravel()
+        q, v = x[:n], x[n:]
+        return np.concatenate([v, -solve(K @ q + C @ v)])
+
+    def b_matvec(w):
+        w = np.asarray(w, dtype=float).ravel()
+        return np.concatenate([np.zeros(n), solve(coupling @ w)])
+
+    A = spla.LinearOperator((2 * n, 2 * n), matvec=a_matvec, dtype=float)
+    B = spla.LinearOperator((2 * n, n_w), matvec=b_matvec, dtype=float)
+    return StateSpace(A, B, labels, inputs)

@@ -1,0 +1,162 @@
+"""Quantities with units at the edges of the tool: parse to SI, format back exactly.
+
+Inside lumped every number is SI (kg, m, s, N). Units live only in files and on
+screens; this module is the one place that turns ``"22 kN/m"`` into ``22000.0`` and
+back.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from functools import lru_cache
+
+__all__ = ["Dimension", "DIMENSIONS", "QuantityError", "parse_quantity", "format_quantity"]
+
+#: Longest quantity string read; longer text is refused before pint sees it.
+MAX_QUANTITY_TEXT = 120
+
+
+class QuantityError(ValueError):
+    """A value that is not a finite quantity of the expected kind."""
+
+
+@dataclass(frozen=True)
+class Dimension:
+    """A kind of quantity: its SI unit (pint spelling) and the unit shown to people."""
+
+    name: str
+    si_unit: str
+    display_unit: str
+
+
+DIMENSIONS = {
+    d.name: d
+    for d in (
+        Dimension("mass", "kg", "kg"),
+        Dimension("length", "m", "mm"),
+        Dimension("velocity", "m/s", "m/s"),
+        Dimension("acceleration", "m/s**2", "m/s**2"),
+        Dimension("time", "s", "s"),
+        Dimension("frequency", "Hz", "Hz"),
+        Dimension("force", "N", "N"),
+        Dimension("stiffness", "N/m", "kN/m"),
+        Dimension("damping", "N*s/m", "N*s/m"),
+        Dimension("dimensionless", "", ""),
+        # ISO 8608 displacement PSD G_d(n), m^2/(cycle/m) = m^3.
+        Dimension("road_psd", "m**3", "m**3"),
+    )
+}
+
+
+@lru_cache(maxsize=1)
+def _registry():
+    import pint
+
+    return pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
+
+
+@lru_cache(maxsize=4096)
+def _parse_text(text: str, dimension: str) -> float:
+    ureg = _registry()
+    try:
+        quantity = ureg.Quantity(text)
+    except Exception as exc:  # pint raises many kinds on malformed text
+        raise QuantityError(f"cannot read {text!r} as a quantity ({type(exc).__name__})") from None
+    dim = DIMENSIONS[dimension]
+    if not isinstance(quantity, ureg.Quantity):  # a bare number in a string
+        quantity = ureg.Quantity(float(quantity), "")
+    try:
+        if dimension == "frequency" and _has_angle_unit(quantity):
+            # Angular frequency: radians (or turns, degrees) per time, divided by 2π.
+            value = quantity.to("radian/second").magnitude / (2.0 * math.pi)
+        else:
+            value = quantity.to(dim.si_unit).magnitude
+    except Exception:
+        raise QuantityError(
+            f"{text!r} is not a {dimension} (expected units like {dim.display_unit or 'a number'})"
+        ) from None
+    value = float(value)
+    if not math.isfinite(value):
+        raise QuantityError(f"{text!r} is not finite")
+    return value
+
+
+def _has_angle_unit(quantity) -> bool:
+    """True when the quantity's units contain an angle (radian, degree, turn, rpm...)."""
+    ureg = _registry()
+    for name in quantity.unit_items():
+        unit = ureg.Quantity(1.0, name[0])
+        if unit.dimensionless and name[0] not in ("dimensionless",):
+            return True
+    return False
+
+
+def parse_quantity(value: object, dimension: str) -> float:
+    """Return ``value`` in SI units of ``dimension``.
+
+    Parameters
+    ----------
+    value : int, float or str
+        A number already in SI units, or a string with its unit (``"1.6 kN*s/m"``).
+    dimension : str
+        A key of :data:`DIMENSIONS`. Frequencies are in Hz; a value given in an
+        angular unit (``"12.6 rad/s"``) is divided by 2π.
+
+    Raises
+    ------
+    QuantityError
+        Not a number or string, not finite, malformed, or of the wrong kind.
+    """
+    if isinstance(value, bool):
+        raise QuantityError(f"expected a {dimension}, got a true/false value")
+    if isinstance(value, int | float):
+        number = float(value)
+        if not math.isfinite(number):
+            raise QuantityError(f"{value!r} is not finite")
+        return number
+    if isinstance(value, str):
+        text = value.strip()
+        if not text:
+            raise QuantityError("empty quantity")
+        if len(text) > MAX_QUANTITY_TEXT:
+            raise QuantityError(f"quantity text longer than {MAX_QUANTITY_TEXT} characters")
+        return _parse_text(text, dimension)
+    raise QuantityError(f"expected a {dimension} as a number or a string with units")
+
+
+def unit_of(value: object) -> str | None:
+    """The unit part of a quantity string as written (``"22 kN/m"`` → ``"kN/m"``), else None."""
+    if not isinstance(value, str):
+        return None
+    text = value.strip()
+    for i, ch in enumerate(text):
+        if not (ch.isdigit() or ch in "+-.eE "):
+            unit = text[i:].strip()
+            return unit or None
+    return None
+
+
+def format_quantity(si_value: float, dimension: str, unit: str | None = None) -> str | float:
+    """``si_value`` written in ``unit`` when that reads back to the same float, else the SI number.
+
+    The file writer uses this so that a saved file stays readable ("22 kN/m") and a
+    round trip is exact: when the unit conversion would change the last bit, the plain
+    SI number is written instead.
+    """
+    unit = unit if unit is not None else DIMENSIONS[dimension].display_unit
+    if not unit:
+        return si_value
+    try:
+        ureg = _registry()
+        factor = ureg.Quantity(1.0, unit).to(DIMENSIONS[dimension].si_unit).magnitude
+    except Exception:
+        return si_value
+    for magnitude in (si_value / factor, round(si_value / factor, 12)):
+        text = f"{magnitude!r} {unit}"
+        try:
+            if parse_quantity(text, dimension) == si_value:
+                return text
+        except QuantityError:
+            pass
+    return si_value
