@@ -39,7 +39,7 @@ from lumped.model import (
 )
 from lumped.units import DIMENSIONS, QuantityError, format_quantity, parse_quantity, unit_of
 
-__all__ = ["FORMAT", "MAX_FILE_BYTES", "load", "loads", "save", "dumps"]
+__all__ = ["FORMAT", "MAX_FILE_BYTES", "load", "loads", "save", "dumps", "dump_path"]
 
 FORMAT = "lumped/1"
 #: Files (system files and the CSV tables they name) above this size are refused unread.
@@ -474,8 +474,15 @@ def dumps(system: System) -> str:
     return tomli_w.dumps(doc)
 
 
+def dump_path(system: System) -> str:
+    """A file name for ``system`` made from its name (``"Delivery van"`` → ``delivery_van.toml``)."""
+    stem = "".join(ch if ch.isalnum() else "_" for ch in system.name.lower()).strip("_")
+    return f"{'_'.join(filter(None, stem.split('_'))) or 'system'}.toml"
+
+
 def save(system: System, path: str | os.PathLike) -> None:
-    """Write ``system`` to ``path`` atomically (a temporary file, then a rename)."""
+    """Write ``system`` to ``path`` atomically (a temporary file, then a rename); table
+    inputs' CSV files are written beside it when missing there."""
     path = Path(path)
     _atomic_write(path, dumps(system))
     for item in system.inputs.values():

@@ -160,3 +160,13 @@ def format_quantity(si_value: float, dimension: str, unit: str | None = None) ->
         except QuantityError:
             pass
     return si_value
+
+
+def display(si_value: float, dimension: str, unit: str | None = None, digits: int = 4) -> str:
+    """``si_value`` as text for people, in ``unit`` or the dimension's display unit
+    (``display(22000, "stiffness")`` → ``"22 kN/m"``)."""
+    unit = unit if unit is not None else DIMENSIONS[dimension].display_unit
+    if not unit:
+        return f"{si_value:.{digits}g}"
+    factor = _registry().Quantity(1.0, unit).to(DIMENSIONS[dimension].si_unit).magnitude
+    return f"{si_value / factor:.{digits}g} {unit.replace('**2', '²').replace('*', '·')}"

@@ -1,0 +1,49 @@
+"""lumped: multi-body lumped-parameter mechanical systems.
+
+Load a system file, assemble its matrices, find its static equilibrium, modes and
+step limits::
+
+    import lumped
+    system = lumped.load("demo_systems/quarter_car.toml")
+    matrices = lumped.assemble(system)
+    static = lumped.static_equilibrium(matrices)
+
+All values are SI (kg, m, s, N); units appear only in files and on screens.
+"""
+
+from lumped.assemble import Matrices, NonlinearElements, StateSpace, assemble, state_space
+from lumped.demos import DEMO_DIR, demo_path, demo_systems
+from lumped.errors import LumpedError, ModelError, Problem
+from lumped.files import dump_path, dumps, load, loads, save
+from lumped.model import (
+    Body,
+    BumpInput,
+    Damper,
+    Force,
+    HarmonicInput,
+    Inerter,
+    RoadInput,
+    RunSettings,
+    Spring,
+    StepInput,
+    Support,
+    SweepInput,
+    System,
+    TableInput,
+    check_system,
+    uniform_chain,
+)
+from lumped.report import SystemSummary, node_levels, summarize
+from lumped.static import StaticError, StaticState, static_equilibrium
+from lumped.steppers import STEPPERS, Stepper, get_stepper
+
+__all__ = [
+    "Body", "BumpInput", "DEMO_DIR", "Damper", "Force", "HarmonicInput", "Inerter",
+    "LumpedError", "Matrices", "ModelError", "NonlinearElements", "Problem", "RoadInput",
+    "RunSettings", "STEPPERS", "Spring", "StateSpace", "StaticError", "StaticState",
+    "StepInput", "Stepper", "Support", "SweepInput", "System", "SystemSummary", "TableInput",
+    "assemble", "check_system", "demo_path", "demo_systems", "dump_path", "dumps",
+    "get_stepper", "load", "loads", "node_levels", "save", "state_space",
+    "static_equilibrium", "summarize", "uniform_chain",
+]  # fmt: skip
+__version__ = "0.1.0"

@@ -1,0 +1,7 @@
+"""``python -m lumped``: the command line."""
+
+import sys
+
+from lumped.cli import main
+
+sys.exit(main())

@@ -1,0 +1,225 @@
+"""The ``lumped`` command line.
+
+Exit codes: 0 done; 1 ``check`` found the run unstable; 2 bad file or option (one
+line per problem on stderr, never a traceback); 3 a run that diverged.
+``--json`` prints a machine-readable answer on stdout, also when the exit code is not 0.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import re
+import subprocess
+import sys
+from pathlib import Path
+
+from lumped.errors import LumpedError
+
+__all__ = ["main"]
+
+EXIT_OK, EXIT_UNSTABLE, EXIT_BAD_INPUT, EXIT_DIVERGED = 0, 1, 2, 3
+
+
+class UsageError(Exception):
+    """A bad option; argparse's own message, one line."""
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message):  # one line, exit code 2, no usage dump
+        raise UsageError(f"{self.prog}: {message} (see {self.prog} --help)")
+
+
+def _parser() -> argparse.ArgumentParser:
+    parser = _Parser(
+        prog="lumped",
+        description="Multi-body lumped-parameter mechanical systems: summaries, modes, step "
+        "limits, runs and frequency response of system files (format lumped/1).",
+        epilog="Exit codes: 0 done, 1 check found the run unstable, 2 bad file or option, "
+        "3 run diverged. Simulation supports, but does not replace, physical testing, the "
+        "applicable standards and regulations, and licensed engineering sign-off.",
+    )
+    commands = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    commands.required = True
+
+    show = commands.add_parser("show", help="summary: bodies, supports, elements, static equilibrium")
+    show.add_argument("file", help="system file (TOML)")
+    show.add_argument("--json", action="store_true", help="SI values as JSON on stdout")
+
+    serve = commands.add_parser("serve", help="start the dashboard in the browser")
+    serve.add_argument("--port", type=int, default=None, help="port (default from .streamlit/config.toml)")
+    _add_analysis_commands(commands)
+    return parser
+
+
+def _add_analysis_commands(commands) -> None:
+    """Commands built on modal analysis and the stepper catalogue."""
+    from lumped.steppers import STEPPERS
+
+    modes = commands.add_parser("modes", help="natural frequencies, damping ratios and mode shapes")
+    modes.add_argument("file", help="system file (TOML)")
+    modes.add_argument("--json", action="store_true", help="SI values as JSON on stdout")
+
+    check = commands.add_parser(
+        "check", help="will this stepper and step hold over this run? (exit 0 stable, 1 not)"
+    )
+    check.add_argument("file", help="system file (TOML)")
+    check.add_argument("--stepper", choices=list(STEPPERS), metavar="ID",
+                       help=f"stepper id, one of: {', '.join(STEPPERS)} (default: the file's [run])")
+    check.add_argument("--dt", type=_quantity_arg("time"), help='time step, s or with units ("0.5 ms")')
+    check.add_argument("--duration", type=_quantity_arg("time"), help="run length, s or with units")
+    check.add_argument("--beta", type=float, help="Newmark β (newmark only)")
+    check.add_argument("--gamma", type=float, help="Newmark γ (newmark only)")
+    check.add_argument("--json", action="store_true", help="the verdict as JSON on stdout")
+
+
+def _quantity_arg(dimension: str):
+    from lumped.units import QuantityError, parse_quantity
+
+    def convert(text: str) -> float:
+        try:
+            value = parse_quantity(text, dimension)
+        except QuantityError as exc:
+            raise argparse.ArgumentTypeError(str(exc)) from None
+        return value
+
+    convert.__name__ = dimension
+    return convert
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Run the command line; returns the exit code (the console script exits with it)."""
+    try:
+        args = _parser().parse_args(argv)
+    except UsageError as exc:
+        print(str(exc), file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except SystemExit as exc:  # --help
+        return int(exc.code or 0)
+    try:
+        return _COMMANDS[args.command](args)
+    except LumpedError as exc:
+        for line in exc.lines():
+            print(f"lumped: {line.strip()}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except KeyboardInterrupt:
+        print("lumped: interrupted", file=sys.stderr)
+        return 130
+    except BrokenPipeError:
+        return EXIT_OK
+
+
+# --------------------------------------------------------------------------- commands
+
+
+def _load(path: str):
+    from lumped.files import load
+
+    return load(path)
+
+
+def _print_json(data) -> None:
+    print(json.dumps(data, indent=2, allow_nan=True))
+
+
+def cmd_show(args) -> int:
+    from lumped.report import summarize
+
+    summary = summarize(_load(args.file))
+    if args.json:
+        _print_json(summary.to_json())
+    else:
+        print(format_summary(summary))
+    if summary.static_error:
+        print(f"lumped: {summary.static_error}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    return EXIT_OK
+
+
+def cmd_serve(args) -> int:
+    app = Path(__file__).resolve().parents[1] / "dashboard" / "app.py"
+    if not app.exists():
+        print(f"lumped: the dashboard is not installed beside the package ({app})", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    command = [sys.executable, "-m", "streamlit", "run", str(app)]
+    if args.port:
+        command += ["--server.port", str(args.port)]
+    return subprocess.call(command, cwd=app.parent.parent)
+
+
+_COMMANDS = {"show": cmd_show, "serve": cmd_serve}
+
+
+# --------------------------------------------------------------------------- text output
+
+
+_NUMBER_CELL = re.compile(r"[-+]?(\d[\d.]*(e[-+]?\d+)?|inf|nan)( [^\s,]+)?")
+
+
+def table(headers: list[str], rows: list[list[str]], indent: str = "  ") -> str:
+    """Rows under headers, columns padded to their widest cell; numbers right-aligned."""
+    widths = [max(len(str(c)) for c in col) for col in zip(headers, *rows, strict=True)]
+
+    def numeric(cell: str) -> bool:
+        return bool(_NUMBER_CELL.fullmatch(cell))
+
+    def line(cells):
+        out = []
+        for cell, width in zip(cells, widths, strict=True):
+            cell = str(cell)
+            out.append(cell.rjust(width) if numeric(cell) else cell.ljust(width))
+        return indent + "  ".join(out).rstrip()
+
+    return "\n".join([line(headers)] + [line(r) for r in rows])
+
+
+def _mm(value: float | None) -> str:
+    return "-" if value is None or not math.isfinite(value) else f"{value * 1e3:.3f} mm"
+
+
+def _kn(value: float | None) -> str:
+    return "-" if value is None else f"{value / 1e3:.4g} kN"
+
+
+def format_summary(summary) -> str:
+    from lumped.units import display
+
+    lines = [summary.name]
+    if summary.description:
+        lines.append(f"  {summary.description}")
+    lines.append(f"  gravity {display(summary.gravity, 'acceleration')}")
+    lines += ["", "Bodies"]
+    lines.append(
+        table(
+            ["id", "mass", "static deflection", "label"],
+            [[b["id"], display(b["mass"], "mass"), _mm(b["static_deflection"]), b["label"]] for b in summary.bodies],
+        )
+    )
+    if summary.supports:
+        lines += ["", "Supports"]
+        rows = []
+        for s in summary.supports:
+            motion = f"follows input {s['motion']!r}" if s["motion"] else "fixed"
+            if s["delay"]:
+                motion += f", {s['delay']:g} s late"
+            rows.append([s["id"], motion, s["label"]])
+        lines.append(table(["id", "motion", "label"], rows))
+    lines += ["", "Elements (force: tension positive; deflection: extension positive)"]
+    lines.append(
+        table(
+            ["id", "kind", "between", "values", "static force", "static deflection"],
+            [
+                [e["id"], e["kind"], " → ".join(e["between"]), e["values"], _kn(e["static_force"]),
+                 _mm(e["static_deflection"])]
+                for e in summary.elements
+            ],
+        )  # fmt: skip
+    )
+    if summary.static_error:
+        lines += ["", f"No static equilibrium: {summary.static_error}"]
+    return "\n".join(lines)
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())
