@@ -11,6 +11,16 @@ step limits::
 All values are SI (kg, m, s, N); units appear only in files and on screens.
 """
 
+import os as _os
+
+# The engine is single-threaded by design (compiled chunks, one core per run or
+# worker); multi-threaded BLAS on small vectors only contends with it, and on a
+# loaded two-core machine a 100 000-element dot product took 300 times longer with
+# two BLAS threads than with one. Takes effect when lumped is imported before numpy;
+# set the variable yourself to choose otherwise.
+for _name in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    _os.environ.setdefault(_name, "1")
+
 from lumped.assemble import Matrices, NonlinearElements, StateSpace, assemble, state_space
 from lumped.demos import DEMO_DIR, demo_path, demo_systems
 from lumped.errors import LumpedError, ModelError, Problem

@@ -148,7 +148,51 @@ def cmd_serve(args) -> int:
     return subprocess.call(command, cwd=app.parent.parent)
 
 
-_COMMANDS = {"show": cmd_show, "serve": cmd_serve}
+def cmd_modes(args) -> int:
+    from lumped.assemble import assemble
+    from lumped.modal import modal_analysis
+
+    system = _load(args.file)
+    result = modal_analysis(assemble(system))
+    if args.json:
+        _print_json(result.to_json())
+    else:
+        print(format_modes(system.name, result))
+    return EXIT_OK
+
+
+def cmd_check(args) -> int:
+    from lumped.assemble import assemble
+    from lumped.stability import check_step
+    from lumped.steppers import get_stepper
+
+    system = _load(args.file)
+    stepper_id = args.stepper or system.run.stepper
+    dt = args.dt if args.dt is not None else system.run.dt
+    duration = args.duration if args.duration is not None else system.run.duration
+    missing = [
+        f"lumped check: give {flag} (the file's [run] table has no {key})"
+        for flag, key, value in (("--stepper", "stepper", stepper_id), ("--dt", "dt", dt),
+                                 ("--duration", "duration", duration))
+        if value is None
+    ]  # fmt: skip
+    if missing:
+        print("\n".join(missing), file=sys.stderr)
+        return EXIT_BAD_INPUT
+    try:
+        stepper = get_stepper(stepper_id, beta=args.beta, gamma=args.gamma)
+    except (KeyError, ValueError) as exc:
+        print(f"lumped check: {exc.args[0]}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    verdict = check_step(assemble(system), stepper, dt, duration)
+    if args.json:
+        _print_json(verdict.to_json())
+    else:
+        print(format_check(system.name, verdict))
+    return EXIT_OK if verdict.stable else EXIT_UNSTABLE
+
+
+_COMMANDS = {"show": cmd_show, "serve": cmd_serve, "modes": cmd_modes, "check": cmd_check}
 
 
 # --------------------------------------------------------------------------- text output
@@ -218,6 +262,77 @@ def format_summary(summary) -> str:
     )
     if summary.static_error:
         lines += ["", f"No static equilibrium: {summary.static_error}"]
+    return "\n".join(lines)
+
+
+def _seconds(value: float | None) -> str:
+    if value is None:
+        return "none stable"
+    if not math.isfinite(value):
+        return "no limit"
+    return f"{value * 1e3:.6g} ms" if value < 1 else f"{value:.6g} s"
+
+
+def _ratio(value: float | None, digits: int = 4) -> str:
+    return "-" if value is None or (isinstance(value, float) and math.isnan(value)) else f"{value:.{digits}g}"
+
+
+def format_modes(name: str, result) -> str:
+    lines = [f"Modes of {name} ({'classical' if result.classical_damping else 'non-proportional'} damping)"]
+    rows = []
+    for k, mode in enumerate(result.modes, 1):
+        kind = "rigid-body" if mode.rigid else "overdamped" if mode.overdamped else "oscillatory"
+        top = sorted(mode.shape.items(), key=lambda kv: -abs(kv[1]))[:3]
+        shape = ", ".join(f"{b} {v:+.3g}" for b, v in top)
+        rows.append([
+            str(k), f"{mode.natural_frequency_hz:.5g} Hz", f"{mode.damped_frequency_hz:.5g} Hz",
+            f"{mode.undamped_frequency_hz:.5g} Hz", _ratio(mode.damping_ratio), kind, shape,
+        ])  # fmt: skip
+    lines.append(
+        table(["mode", "natural", "damped", "undamped", "damping ratio", "kind", "largest shape entries"], rows)
+    )
+    lines += ["", "Undamped modes: modal mass (shape scaled to unit largest entry), effective mass per support"]
+    supports = list(result.effective_mass)
+    rows = [
+        [str(j + 1), f"{w / (2 * math.pi):.5g} Hz", f"{mm:.4g} kg"]
+        + [f"{result.effective_mass[s][j]:.4g} kg" for s in supports]
+        for j, (w, mm) in enumerate(zip(result.omega, result.modal_mass, strict=True))
+    ]
+    lines.append(table(["mode", "frequency", "modal mass", *[f"effective mass ({s})" for s in supports]], rows))
+    lines.append("  natural = |λ|/2π of the damped eigenvalue; damping ratio = −Re λ/|λ|")
+    return "\n".join(lines)
+
+
+def format_check(name: str, verdict) -> str:
+    state = "STABLE" if verdict.stable else "UNSTABLE"
+    lines = [
+        f"{name}: {verdict.stepper} at dt = {_seconds(verdict.dt)} over {verdict.duration:g} s "
+        f"({verdict.steps:,} steps): {state}",
+    ]
+    if verdict.limiting_mode is not None:
+        mode = verdict.modes[verdict.limiting_mode]
+        lines.append(
+            f"  stability limit   {_seconds(verdict.max_stable_dt)}, set by the "
+            f"{mode.natural_frequency_hz:.5g} Hz mode (damping ratio {mode.damping_ratio:.3g})"
+        )
+    else:
+        lines.append("  stability limit   no limit on this system")
+    lines.append(f"  growth over run   {verdict.growth_over_run:.6g} (largest amplitude factor of any mode)")
+    lines.append(f"  recommended dt    {_seconds(verdict.recommended_dt)} ({verdict.recommendation_rule})")
+    lines.append(f"  from              {verdict.source}")
+    for note in verdict.notes:
+        lines.append(f"  note: {note}")
+    rows = [
+        [
+            str(k + 1), f"{m.natural_frequency_hz:.5g} Hz", _ratio(m.damping_ratio),
+            _seconds(m.max_stable_dt if m.max_stable_dt > 0 else None), f"{m.spectral_radius:.9f}",
+            _ratio(m.growth_over_run, 6), _ratio(m.numerical_damping_ratio),
+            "-" if m.period_error is None else f"{m.period_error:+.3e}",
+        ]
+        for k, m in enumerate(verdict.modes)
+    ]  # fmt: skip
+    lines += ["", table(["mode", "frequency", "damping ratio", "max stable dt", "radius/step",
+                         "growth over run", "numerical damping", "period error"], rows)]  # fmt: skip
     return "\n".join(lines)
 
 

@@ -265,7 +265,7 @@ class _Reader:
     def _input(self, key: str, table: dict):
         where = f"inputs.{key}"
         kind = table.get("kind")
-        if kind not in _INPUT_KINDS:
+        if not isinstance(kind, str) or kind not in _INPUT_KINDS:
             if kind is None:
                 self.problem(where, "kind", f"missing; one of {', '.join(_INPUT_KINDS)}")
             else:

@@ -140,11 +140,14 @@ class Damper:
         Asymmetric: the mean of rebound and compression (common practice for
         linearising a bilinear damper about zero velocity). Curve: the slope of the
         interpolated curve through zero velocity (mean of the slopes on each side).
+        An incompletely defined damper (which :func:`check_system` reports) gives 0.
         """
         if self.coefficient is not None:
             return self.coefficient
         if self.curve is not None:
             return curve_slope_at_zero(self.curve)
+        if self.rebound is None or self.compression is None:
+            return 0.0
         return 0.5 * (self.rebound + self.compression)
 
 

@@ -55,6 +55,9 @@ class Stepper:
     cost: str
     description: str
 
+    #: "first-order" (acts on x' = Ax through R(hλ)) or "second-order" (on M, C, K).
+    form = "first-order"
+
     def roots(self, omega_h, zeta) -> np.ndarray:
         """Eigenvalues (…, 2) of the one-step map on the modal oscillator at Ω = hω."""
         raise NotImplementedError
@@ -98,6 +101,7 @@ class SecondOrderStepper(Stepper):
     scheme: str = ""
     beta: float = 0.25
     gamma: float = 0.5
+    form = "second-order"
 
     def amplification(self, omega_h, zeta) -> np.ndarray:
         """The one-step matrix G (…, 2, 2) at Ω = hω, time scaled so that ω = 1.
@@ -109,9 +113,7 @@ class SecondOrderStepper(Stepper):
         - ``newmark``: x₁ = x + h v + h²((½ − β) a + β a₁), v₁ = v + h((1 − γ) a + γ a₁),
           a₁ from the equation of motion at the new state; state (x, v).
         """
-        W = np.asarray(omega_h, dtype=float)
-        z = np.broadcast_to(np.asarray(zeta, dtype=float), W.shape)
-        W = np.broadcast_to(W, z.shape)
+        W, z = np.broadcast_arrays(np.asarray(omega_h, dtype=float), np.asarray(zeta, dtype=float))
         G = np.empty(W.shape + (2, 2))
         if self.scheme == "symplectic-euler":
             G[..., 0, 0] = 1 - W**2

@@ -13,7 +13,11 @@ from fractions import Fraction
 
 import numpy as np
 
-__all__ = ["ButcherTableau"]
+__all__ = ["ButcherTableau", "CANCELLED"]
+
+#: A coefficient of |N|² − |D|² this small against the sum of its terms' sizes is an
+#: exact cancellation blurred by rounding (a few ulps), and is set to zero.
+CANCELLED = 1e-13
 
 
 def _exact(rows) -> tuple[tuple[Fraction, ...], ...]:
@@ -96,25 +100,32 @@ class ButcherTableau:
         )
 
     def modulus_excess(self, omega_h, direction):
-        """|N(z)|² − |D(z)|² at z = Ω·μ, and the scale of its terms, without cancellation.
+        """|N(z)|² − |D(z)|² at z = Ω·μ, and the size of its terms, without cancellation.
 
         ``omega_h`` (Ω = h|λ|) and the unit complex ``direction`` (μ = λ/|λ|) broadcast.
         |R(z)| > 1 exactly where the excess is positive. Expanding |P(Ωμ)|² as
         Σ_k Ω^k Σ_{i+j=k} p_i p_j μ^i μ̄^j drops the constant term (which cancels
-        between N and D) before any rounding, so the sign is right even when
-        |R| − 1 is far below machine precision.
+        between N and D) before any rounding, and a coefficient smaller than its
+        rounding error (:data:`CANCELLED`) is set to the zero it is in exact
+        arithmetic. So the sign is right even where |R| − 1 is far below machine
+        precision: explicit Euler and Heun are unstable on an undamped mode at any Ω.
         """
         omega_h = np.asarray(omega_h, dtype=float)
         mu = np.asarray(direction, dtype=complex)
         coefficients, scale = _squared_modulus_coefficients(self.numerator, self.denominator, mu)
+        coefficients = np.where(np.abs(coefficients) <= CANCELLED * scale, 0.0, coefficients)
         excess = np.zeros(np.broadcast(omega_h, mu).shape)
         magnitude = np.zeros_like(excess)
         power = np.ones_like(excess)
         for k in range(1, coefficients.shape[-1]):
             power = power * omega_h
             excess = excess + coefficients[..., k] * power
-            magnitude = magnitude + scale[..., k] * power
+            magnitude = magnitude + np.abs(coefficients[..., k]) * power
         return excess, magnitude
+
+    def denominator_modulus2(self, z):
+        """|D(z)|² for complex ``z``."""
+        return np.abs(np.polynomial.polynomial.polyval(np.asarray(z, dtype=complex), self.denominator)) ** 2
 
 
 def _squared_modulus_coefficients(n, d, mu):
