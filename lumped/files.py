@@ -94,7 +94,12 @@ _REQUIRED = {
     "table": ("file",),
 }
 # The placeholder a field takes after a problem, so that checks of meaning still run.
-_FALLBACK = {"str": "", "int": 0, "between": ("?", "?"), "curve": None, "signal": (1.0, None)}
+# A curve placeholder is (points, units), as the curve reader returns; its points pass
+# the damper checks.
+_FALLBACK = {
+    "str": "", "int": 0, "between": ("?", "?"), "curve": (((0.0, 0.0), (1.0, 0.0)), {}),
+    "signal": (1.0, None),
+}  # fmt: skip
 
 
 # --------------------------------------------------------------------------- reading
@@ -149,7 +154,10 @@ def loads(text: str | bytes, source: str = "<text>", base_dir: str | os.PathLike
     system = reader.read(document)
     problems = reader.problems
     if system is not None:
-        problems += check_system(system)
+        # A field the reader could not use holds a placeholder: what the checks of
+        # meaning would say about that field is about the placeholder, not the file.
+        unusable = {(p.item, p.field.partition("[")[0]) for p in problems}
+        problems += [p for p in check_system(system) if (p.item, p.field) not in unusable]
     if problems:
         raise ModelError(problems, source)
     return system
@@ -355,18 +363,19 @@ class _Reader:
     def _curve(self, where: str, value):
         if not isinstance(value, list) or not value:
             self.problem(where, "curve", "must be a list of [velocity, force] pairs")
-            return None, {}
+            return _FALLBACK["curve"]
         points, units = [], {}
         for i, pair in enumerate(value):
             if not (isinstance(pair, list) and len(pair) == 2):
                 self.problem(where, f"curve[{i}]", "must be a [velocity, force] pair")
-                return None, {}
+                return _FALLBACK["curve"]
             try:
                 v = parse_quantity(pair[0], "velocity")
                 f = parse_quantity(pair[1], "force")
             except QuantityError as exc:
-                self.problem(where, f"curve[{i}]", str(exc))
-                return None, {}
+                if not any(isinstance(x, float) and not math.isfinite(x) for x in pair):
+                    self.problem(where, f"curve[{i}]", str(exc))  # non-finite: reported already
+                return _FALLBACK["curve"]
             if i == 0:
                 for axis, raw in (("curve_velocity", pair[0]), ("curve_force", pair[1])):
                     if unit_of(raw):

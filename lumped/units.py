@@ -8,6 +8,7 @@ back.
 from __future__ import annotations
 
 import math
+import re
 from dataclasses import dataclass
 from functools import lru_cache
 
@@ -15,6 +16,8 @@ __all__ = ["Dimension", "DIMENSIONS", "QuantityError", "parse_quantity", "format
 
 #: Longest quantity string read; longer text is refused before pint sees it.
 MAX_QUANTITY_TEXT = 120
+#: An integer literal in quantity text: not part of a name, a decimal or an exponent.
+_INTEGER_LITERAL = re.compile(r"(?<![\w.])(?<![eE][+-])(\d[\d_]*)(?![\w.])")
 
 
 class QuantityError(ValueError):
@@ -56,11 +59,22 @@ def _registry():
     return pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
 
 
+def _integers_as_floats(text: str) -> str:
+    """``text`` with its integer literals written as floats (``"2**1024 s"`` →
+    ``"2.0**1024.0 s"``).
+
+    pint evaluates integer literals as Python integers, so a power tower such as
+    ``"9**9**9 s"`` would build an integer of hundreds of millions of digits; in
+    floating point it overflows at once, and the text is refused.
+    """
+    return _INTEGER_LITERAL.sub(r"\1.0", text)
+
+
 @lru_cache(maxsize=4096)
 def _parse_text(text: str, dimension: str) -> float:
     ureg = _registry()
     try:
-        quantity = ureg.Quantity(text)
+        quantity = ureg.Quantity(_integers_as_floats(text))
     except Exception as exc:  # pint raises many kinds on malformed text
         raise QuantityError(f"cannot read {text!r} as a quantity ({type(exc).__name__})") from None
     dim = DIMENSIONS[dimension]
@@ -76,20 +90,24 @@ def _parse_text(text: str, dimension: str) -> float:
         raise QuantityError(
             f"{text!r} is not a {dimension} (expected units like {dim.display_unit or 'a number'})"
         ) from None
-    value = float(value)
+    try:
+        value = float(value)
+    except (OverflowError, TypeError, ValueError):
+        raise QuantityError(f"{text!r} is not a finite number") from None
     if not math.isfinite(value):
         raise QuantityError(f"{text!r} is not finite")
     return value
 
 
 def _has_angle_unit(quantity) -> bool:
-    """True when the quantity's units contain an angle (radian, degree, turn, rpm...)."""
+    """True when the quantity's units contain an angle (radian, degree, turn, rpm...).
+
+    Judged on the root units, where every angle unit, also one folded into a rate
+    such as ``rpm`` (revolutions per minute), reduces to radians.
+    """
     ureg = _registry()
-    for name in quantity.unit_items():
-        unit = ureg.Quantity(1.0, name[0])
-        if unit.dimensionless and name[0] not in ("dimensionless",):
-            return True
-    return False
+    _, root = ureg.get_root_units(quantity.units)
+    return any(name == "radian" for name, _ in ureg.Quantity(1.0, root).unit_items())
 
 
 def parse_quantity(value: object, dimension: str) -> float:

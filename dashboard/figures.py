@@ -1,0 +1,260 @@
+"""Plotly figures built from library results. Pure functions: no Streamlit, no physics.
+
+The system drawing places each node at the height of its level from
+:func:`lumped.node_levels` (supports at 0), spreads the nodes of one level sideways,
+and draws one edge per element. Parallel elements between the same two nodes are
+bowed apart so that each one stays visible.
+"""
+
+from __future__ import annotations
+
+import html
+import math
+from collections import defaultdict
+
+import plotly.graph_objects as go
+
+import lumped
+from dashboard.tables import force_text, length_text, mass_text
+from lumped.units import display
+
+__all__ = ["EDGE_STYLE", "LABEL_LIMIT", "node_positions", "system_graph"]
+
+#: Line style per element kind: colour, dash pattern and width.
+EDGE_STYLE = {
+    "spring": {"color": "#1f5a8c", "dash": "solid", "width": 2.6},
+    "damper": {"color": "#b4582a", "dash": "dash", "width": 2.6},
+    "inerter": {"color": "#5e4b8b", "dash": "dot", "width": 3.2},
+}
+BODY_FILL, BODY_EDGE = "#d9e6f2", "#1c3550"
+SUPPORT_FILL = "#3d4650"
+
+#: Systems with more nodes or elements than this are drawn without text labels
+#: (values stay available on hover), so that large chains stay readable.
+LABEL_LIMIT = 40
+
+_PARALLEL_SPREAD = 0.24  # sideways distance between parallel elements, in node spacings
+_BOW_START, _BOW_END = 0.18, 0.82  # where along the edge a bowed element runs offset
+
+
+def node_positions(system: lumped.System) -> dict[str, tuple[float, float]]:
+    """(x, y) of every body and support: y is the node's level; the nodes of one level
+    are spaced one unit apart, centred on x = 0, ordered so that each node sits near the
+    mean x of the lower nodes it is joined to."""
+    levels = lumped.node_levels(system)
+    order = {node: i for i, node in enumerate([*system.supports, *system.bodies])}
+    by_level: dict[int, list[str]] = defaultdict(list)
+    for node in sorted(levels, key=order.__getitem__):
+        by_level[levels[node]].append(node)
+    graph = system.graph
+    positions: dict[str, tuple[float, float]] = {}
+    for level in sorted(by_level):
+        nodes = by_level[level]
+
+        def barycentre(node, level=level):
+            below = [
+                positions[n][0]
+                for n in graph.neighbors(node)
+                if n in positions and levels[n] < level
+            ]
+            return sum(below) / len(below) if below else 0.0
+
+        if level > min(by_level):
+            nodes = sorted(nodes, key=lambda n: (barycentre(n), order[n]))
+        width = len(nodes) - 1
+        for i, node in enumerate(nodes):
+            positions[node] = (i - width / 2, float(level))
+    return positions
+
+
+def _text(value: object) -> str:
+    """User-written text made safe for plotly's HTML-like labels."""
+    return html.escape(str(value), quote=False)
+
+
+def _support_motion(system: lumped.System, support: lumped.Support) -> str:
+    if not support.motion:
+        return "fixed"
+    inp = system.inputs.get(support.motion)
+    kind = f" ({inp.kind})" if inp is not None else ""
+    return f"moves with {support.motion}{kind}"
+
+
+def system_graph(system: lumped.System, summary: lumped.SystemSummary | None = None) -> go.Figure:
+    """The system drawn as a graph: bodies as squares, supports as triangles, one line
+    per element (springs solid, dampers dashed, inerters dotted), labelled with the
+    element's id and values; hover shows static values from ``summary`` (computed with
+    :func:`lumped.summarize` when not given).
+
+    Traces, in order: one line trace per element kind present (in the legend), one
+    hover-point trace per kind at the elements' midpoints, the bodies, the supports.
+    Element labels are layout annotations (none above :data:`LABEL_LIMIT`).
+    """
+    if summary is None:
+        summary = lumped.summarize(system)
+    positions = node_positions(system)
+    labelled = len(positions) <= LABEL_LIMIT and len(system.elements) <= LABEL_LIMIT
+    element_rows = {row["id"]: row for row in summary.elements}
+    body_rows = {row["id"]: row for row in summary.bodies}
+
+    # Group elements by the (unordered) pair of nodes they join, to spread parallels.
+    pairs: dict[frozenset, list] = defaultdict(list)
+    for element in system.elements.values():
+        a, b = element.between
+        if a in positions and b in positions and a != b:
+            pairs[frozenset((a, b))].append(element)
+
+    lines: dict[str, tuple[list, list]] = {}
+    hover: dict[str, tuple[list, list, list]] = {}
+    annotations = []
+    for elements in pairs.values():
+        count = len(elements)
+        for j, element in enumerate(elements):
+            a, b = element.between
+            (xa, ya), (xb, yb) = positions[a], positions[b]
+            if yb < ya or (yb == ya and xb < xa):  # draw from the lower node up
+                (xa, ya), (xb, yb) = (xb, yb), (xa, ya)
+            dx, dy = xb - xa, yb - ya
+            norm = math.hypot(dx, dy) or 1.0
+            px, py = dy / norm, -dx / norm  # unit normal: to the right of an upward edge
+            offset = (j - (count - 1) / 2) * _PARALLEL_SPREAD
+            if offset and not labelled:  # dense drawings: straight parallel lines
+                path_x = [xa + offset * px, xb + offset * px]
+                path_y = [ya + offset * py, yb + offset * py]
+            elif offset:
+                bend = (_BOW_START, _BOW_END)
+                path_x = [xa, *(xa + t * dx + offset * px for t in bend), xb]
+                path_y = [ya, *(ya + t * dy + offset * py for t in bend), yb]
+            else:
+                path_x, path_y = [xa, xb], [ya, yb]
+            xs, ys = lines.setdefault(element.kind, ([], []))
+            xs.extend([*path_x, None])
+            ys.extend([*path_y, None])
+
+            row = element_rows.get(element.id, {})
+            mid_x, mid_y = xa + dx / 2 + offset * px, ya + dy / 2 + offset * py
+            values = row.get("values", "")
+            hx, hy, ht = hover.setdefault(element.kind, ([], [], []))
+            hx.append(mid_x)
+            hy.append(mid_y)
+            ht.append(
+                f"<b>{_text(element.id)}</b> · {element.kind}<br>"
+                f"{_text(' → '.join(element.between))}<br>{_text(values)}<br>"
+                f"static force {force_text(row.get('static_force'))} (tension +)<br>"
+                f"static deflection {length_text(row.get('static_deflection'))} (extension +)"
+            )
+            if labelled:
+                left = offset < 0
+                annotations.append(
+                    {
+                        "x": mid_x,
+                        "y": mid_y,
+                        "xref": "x",
+                        "yref": "y",
+                        "text": f"<b>{_text(element.id)}</b><br>"
+                        + "<br>".join(_text(part) for part in values.split(", ")),
+                        "showarrow": False,
+                        "xanchor": "right" if left else "left",
+                        "align": "right" if left else "left",
+                        "xshift": -9 if left else 9,
+                        "font": {"size": 11, "color": EDGE_STYLE[element.kind]["color"]},
+                    }
+                )
+
+    small = not labelled
+    fig = go.Figure()
+    for kind in EDGE_STYLE:
+        if kind in lines:
+            xs, ys = lines[kind]
+            style = EDGE_STYLE[kind]
+            fig.add_trace(
+                go.Scatter(
+                    x=xs, y=ys, mode="lines", name=kind, hoverinfo="skip",
+                    line={"color": style["color"], "dash": style["dash"],
+                          "width": 1.2 if small else style["width"]},
+                )
+            )  # fmt: skip
+    for kind in EDGE_STYLE:
+        if kind in hover:
+            hx, hy, ht = hover[kind]
+            fig.add_trace(
+                go.Scatter(
+                    x=hx, y=hy, mode="markers", name=f"{kind} values", showlegend=False,
+                    hovertext=ht, hoverinfo="text",
+                    marker={"size": 5 if small else 7, "color": EDGE_STYLE[kind]["color"],
+                            "opacity": 0 if small else 1},
+                )
+            )  # fmt: skip
+
+    bodies = [b for b in system.bodies.values() if b.id in positions]
+    fig.add_trace(
+        go.Scatter(
+            x=[positions[b.id][0] for b in bodies],
+            y=[positions[b.id][1] for b in bodies],
+            mode="markers" if not labelled else "markers+text",
+            name="body",
+            text=[f"<b>{_text(b.id)}</b>  {mass_text(b.mass)}  " for b in bodies],
+            textposition="middle left",
+            textfont={"size": 12, "color": BODY_EDGE},
+            hovertext=[
+                f"<b>{_text(b.id)}</b> · body<br>{_text(b.label) + '<br>' if b.label else ''}"
+                f"mass {mass_text(b.mass)}<br>"
+                "static deflection "
+                f"{length_text(body_rows.get(b.id, {}).get('static_deflection'))} (up +)"
+                for b in bodies
+            ],
+            hoverinfo="text",
+            marker={"symbol": "square", "size": 5 if small else 26, "color": BODY_FILL,
+                    "line": {"color": BODY_EDGE, "width": 1 if small else 2}},
+        )
+    )  # fmt: skip
+    supports = [s for s in system.supports.values() if s.id in positions]
+    fig.add_trace(
+        go.Scatter(
+            x=[positions[s.id][0] for s in supports],
+            y=[positions[s.id][1] for s in supports],
+            mode="markers" if not labelled else "markers+text",
+            name="support",
+            text=[f"<b>{_text(s.id)}</b> · {_text(_support_motion(system, s))}" for s in supports],
+            textposition="bottom center",
+            textfont={"size": 12, "color": SUPPORT_FILL},
+            hovertext=[
+                f"<b>{_text(s.id)}</b> · support<br>{_text(s.label) + '<br>' if s.label else ''}"
+                f"{_text(_support_motion(system, s))}"
+                + (f", {display(s.delay, 'time')} late" if s.motion and s.delay else "")
+                for s in supports
+            ],
+            hoverinfo="text",
+            marker={"symbol": "triangle-up", "size": 14 if small else 24, "color": SUPPORT_FILL,
+                    "line": {"color": SUPPORT_FILL, "width": 1}},
+        )
+    )  # fmt: skip
+
+    xs = [p[0] for p in positions.values()] or [0.0]
+    top = max((p[1] for p in positions.values()), default=0.0)
+    levels = int(top) + 1
+    if not labelled:
+        annotations.append(
+            {
+                "x": 0, "y": 0, "xref": "paper", "yref": "paper", "xanchor": "left",
+                "yanchor": "top", "yshift": -4, "showarrow": False,
+                "font": {"size": 11, "color": "#5a6570"},
+                "text": f"{len(positions)} nodes, {len(system.elements)} elements: "
+                "labels hidden; hover for values",
+            }
+        )  # fmt: skip
+    fig.update_layout(
+        annotations=annotations,
+        height=max(340, min(660, 150 + 125 * levels)),
+        margin={"l": 10, "r": 10, "t": 46, "b": 30 if small else 10},
+        plot_bgcolor="white",
+        paper_bgcolor="white",
+        hovermode="closest",
+        dragmode="pan",
+        legend={"orientation": "h", "x": 1, "xanchor": "right", "y": 1.0, "yanchor": "bottom",
+                "font": {"size": 12}},
+        xaxis={"visible": False, "range": [min(xs) - 1.5, max(xs) + 1.5], "fixedrange": False},
+        yaxis={"visible": False, "range": [-0.45 if labelled else -0.02 * top - 0.5,
+                                           top + (0.35 if labelled else 0.02 * top + 0.5)]},
+    )  # fmt: skip
+    return fig

@@ -1,0 +1,472 @@
+"""Compiled inner loops (numba, cached on disk) of the stepping engine.
+
+One element loop, :func:`body_accelerations`, gives every body's acceleration and
+the three energy rates (dissipation, work by supports, work by forces) from a
+state and the inputs at one instant; the explicit Runge–Kutta kernel (any tableau),
+the symplectic Euler kernel and the output post-processing all call it, so the
+physics lives in one place. Linear systems under implicit or exact steppers go
+through :func:`affine_chunk`, one dense affine map per step.
+
+Layout. Nodes are numbered bodies first (0 … n−1), then supports (n …). Element e
+joins ``ea[e]`` (lower) to ``eb[e]``; its deflection from static equilibrium is
+x_b − x_a and its force is positive in tension: +f on node a, −f on node b.
+Element kinds: 0 spring, 1 linear damper, 2 asymmetric damper, 3 tabulated damper,
+4 inerter (its body-side inertia is in the mass matrix; its support-side part is a
+known force here).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+__all__ = [
+    "SPRING", "DAMPER", "ASYMMETRIC_DAMPER", "CURVE_DAMPER", "INERTER",
+    "body_accelerations", "element_state", "rk_chunk", "symplectic_chunk", "affine_chunk",
+]  # fmt: skip
+
+SPRING, DAMPER, ASYMMETRIC_DAMPER, CURVE_DAMPER, INERTER = 0, 1, 2, 3, 4
+
+# Status codes returned by the chunk kernels.
+OK, DIVERGED = 0, 1
+
+
+@njit(cache=True, inline="always")
+def _spring_force(d, k, fs, acts, gap, gk):
+    """Dynamic force (total − static) of a spring at deflection d from static."""
+    f = k * d
+    if acts != 0:
+        total = fs + f
+        if acts > 0 and total > 0.0:  # compression only: no tension in the total force
+            total = 0.0
+        elif acts < 0 and total < 0.0:  # tension only
+            total = 0.0
+        f = total - fs
+    if d > gap:
+        f += gk * (d - gap)
+    elif d < -gap:
+        f += gk * (d + gap)
+    return f
+
+
+@njit(cache=True, inline="always")
+def _curve_force(dv, lo, hi, cv, cf):
+    """Piecewise-linear damper curve through points lo … hi−1, extrapolated linearly."""
+    if dv <= cv[lo]:
+        j = lo
+    elif dv >= cv[hi - 1]:
+        j = hi - 2
+    else:
+        j = lo
+        while cv[j + 1] < dv:
+            j += 1
+    slope = (cf[j + 1] - cf[j]) / (cv[j + 1] - cv[j])
+    return cf[j] + slope * (dv - cv[j])
+
+
+@njit(cache=True)
+def body_accelerations(
+    q, v, u, ud, udd, F,
+    ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
+    minv, Minv, dense_mass, fbody, fscale,
+    acc, rates,
+):  # fmt: skip
+    """Fill ``acc`` (n) with body accelerations and ``rates`` (3) with the power
+    dissipated, delivered by supports and delivered by forces (W).
+
+    ``k``: stiffness of springs, inertance of inerters; ``c``: damping coefficient
+    (rebound coefficient for asymmetric dampers), ``c2``: compression coefficient;
+    ``coff[e]``: first curve point of a tabulated damper e (its points run to
+    ``coff[e+1]`` of the next curve, see ``cf``/``cv``).
+    """
+    n = q.shape[0]
+    force = np.zeros(n)
+    dissipated = 0.0
+    supports = 0.0
+    has_inerters = False
+    for e in range(ea.shape[0]):
+        a = ea[e]
+        b = eb[e]
+        if a < n:
+            xa, va, sa = q[a], v[a], 0.0
+        else:
+            xa, va, sa = u[a - n], ud[a - n], ud[a - n]
+        if b < n:
+            xb, vb, sb = q[b], v[b], 0.0
+        else:
+            xb, vb, sb = u[b - n], ud[b - n], ud[b - n]
+        d = xb - xa
+        dv = vb - va
+        kd = kind[e]
+        if kd == SPRING:
+            f = _spring_force(d, k[e], fs[e], acts[e], gap[e], gk[e])
+        elif kd == DAMPER:
+            f = c[e] * dv
+            dissipated += f * dv
+        elif kd == ASYMMETRIC_DAMPER:
+            f = c[e] * dv if dv > 0.0 else c2[e] * dv
+            dissipated += f * dv
+        elif kd == CURVE_DAMPER:
+            f = _curve_force(dv, coff[e], coff[e + 1], cv, cf)
+            dissipated += f * dv
+        else:  # inerter: only its support-side part is known here (see the mass matrix)
+            f = 0.0
+            if a >= n:
+                f -= k[e] * udd[a - n]
+            if b >= n:
+                f += k[e] * udd[b - n]
+            has_inerters = True
+        if kd != INERTER:
+            supports += f * (sb - sa)
+        if a < n:
+            force[a] += f
+        if b < n:
+            force[b] -= f
+    work = 0.0
+    for j in range(fbody.shape[0]):
+        load = fscale[j] * F[j]
+        force[fbody[j]] += load
+        work += load * v[fbody[j]]
+    if dense_mass:
+        for i in range(n):
+            s = 0.0
+            for j in range(n):
+                s += Minv[i, j] * force[j]
+            acc[i] = s
+    else:
+        for i in range(n):
+            acc[i] = minv[i] * force[i]
+    if has_inerters:  # an inerter's whole force b·δ'' works on the support it joins
+        for e in range(ea.shape[0]):
+            a = ea[e]
+            b = eb[e]
+            if kind[e] == INERTER and (a >= n or b >= n):
+                acc_a = acc[a] if a < n else udd[a - n]
+                acc_b = acc[b] if b < n else udd[b - n]
+                sa = ud[a - n] if a >= n else 0.0
+                sb = ud[b - n] if b >= n else 0.0
+                supports += k[e] * (acc_b - acc_a) * (sb - sa)
+    rates[0] = dissipated
+    rates[1] = supports
+    rates[2] = work
+
+
+@njit(cache=True)
+def element_state(
+    q, v, a, u, ud, udd,
+    ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
+    deflection, force, energy,
+):  # fmt: skip
+    """Per element at one instant: deflection from static (m), total force (N, static
+    included, tension positive) and stored energy (J; inerters: ½ b δ'²)."""
+    n = q.shape[0]
+    for e in range(ea.shape[0]):
+        i = ea[e]
+        j = eb[e]
+        xa = q[i] if i < n else u[i - n]
+        xb = q[j] if j < n else u[j - n]
+        va = v[i] if i < n else ud[i - n]
+        vb = v[j] if j < n else ud[j - n]
+        aa = a[i] if i < n else udd[i - n]
+        ab = a[j] if j < n else udd[j - n]
+        d = xb - xa
+        dv = vb - va
+        kd = kind[e]
+        deflection[e] = d
+        if kd == SPRING:
+            f = _spring_force(d, k[e], fs[e], acts[e], gap[e], gk[e])
+            energy[e] = _spring_energy(d, k[e], fs[e], acts[e], gap[e], gk[e])
+            force[e] = fs[e] + f
+        elif kd == DAMPER:
+            force[e] = c[e] * dv
+            energy[e] = 0.0
+        elif kd == ASYMMETRIC_DAMPER:
+            force[e] = c[e] * dv if dv > 0.0 else c2[e] * dv
+            energy[e] = 0.0
+        elif kd == CURVE_DAMPER:
+            force[e] = _curve_force(dv, coff[e], coff[e + 1], cv, cf)
+            energy[e] = 0.0
+        else:
+            force[e] = k[e] * (ab - aa)
+            energy[e] = 0.5 * k[e] * dv * dv
+
+
+@njit(cache=True, inline="always")
+def _spring_energy(d, k, fs, acts, gap, gk):
+    """∫₀^d (dynamic force) dδ for a spring: linear part, one-sided clip, end stop."""
+    energy = 0.5 * k * d * d
+    if acts != 0 and k > 0.0:
+        # Contact ends where fs + kδ crosses 0, at δ0 = −fs/k; beyond it the dynamic
+        # force is the constant −fs.
+        d0 = -fs / k
+        beyond = (acts > 0 and d > d0 and d0 >= 0.0) or (acts < 0 and d < d0 and d0 <= 0.0)
+        if beyond:
+            energy = 0.5 * k * d0 * d0 - fs * (d - d0)
+    if d > gap:
+        energy += 0.5 * gk * (d - gap) ** 2
+    elif d < -gap:
+        energy += 0.5 * gk * (d + gap) ** 2
+    return energy
+
+
+@njit(cache=True)
+def _contact_values(q, u, n, watch_element, watch_kind, ea, eb, k, fs, gap, out):
+    """For each watched element, a value whose sign change is an event: for one-sided
+    springs fs + kδ (the force it would carry), for end stops |δ| − gap."""
+    for w in range(watch_element.shape[0]):
+        e = watch_element[w]
+        i = ea[e]
+        j = eb[e]
+        xa = q[i] if i < n else u[i - n]
+        xb = q[j] if j < n else u[j - n]
+        d = xb - xa
+        if watch_kind[w] == 0:
+            out[w] = fs[e] + k[e] * d
+        else:
+            out[w] = abs(d) - gap[e]
+
+
+@njit(cache=True)
+def rk_chunk(
+    A, B, stage_col, end_col, q, v, energy, h, k0, nsteps,
+    U, Ud, Udd, FF,
+    ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
+    minv, Minv, dense_mass, fbody, fscale,
+    out_every, out_q, out_v, out_a, out_e, out_step, n_out,
+    watch_element, watch_kind, watch_prev, ev_step, ev_frac, ev_watch, ev_value, n_ev,
+    q_limit,
+):  # fmt: skip
+    """Advance ``nsteps`` explicit Runge–Kutta steps (tableau A, B) from global step
+    ``k0``; inputs for step j at stage offset column ``col`` are ``U[j, col]`` etc.
+
+    Samples are written after each step whose global index is a multiple of
+    ``out_every``. Returns (status, steps done, samples written, events written).
+    """
+    n = q.shape[0]
+    s = B.shape[0]
+    kq = np.zeros((s, n))
+    kv = np.zeros((s, n))
+    ke = np.zeros((s, 3))
+    qs = np.zeros(n)
+    vs = np.zeros(n)
+    acc = np.zeros(n)
+    rates = np.zeros(3)
+    values = np.zeros(watch_element.shape[0])
+    m = n_out
+    ne = n_ev
+    for j in range(nsteps):
+        for i in range(s):
+            for r in range(n):
+                sq = q[r]
+                sv = v[r]
+                for l in range(i):
+                    if A[i, l] != 0.0:
+                        sq += h * A[i, l] * kq[l, r]
+                        sv += h * A[i, l] * kv[l, r]
+                qs[r] = sq
+                vs[r] = sv
+            col = stage_col[i]
+            body_accelerations(
+                qs, vs, U[j, col], Ud[j, col], Udd[j, col], FF[j, col],
+                ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
+                minv, Minv, dense_mass, fbody, fscale, acc, rates,
+            )  # fmt: skip
+            for r in range(n):
+                kq[i, r] = vs[r]
+                kv[i, r] = acc[r]
+            ke[i, 0] = rates[0]
+            ke[i, 1] = rates[1]
+            ke[i, 2] = rates[2]
+        worst = 0.0
+        for r in range(n):
+            dq = 0.0
+            dv = 0.0
+            for i in range(s):
+                dq += B[i] * kq[i, r]
+                dv += B[i] * kv[i, r]
+            q[r] += h * dq
+            v[r] += h * dv
+            x = abs(q[r])
+            if not (x <= worst):  # catches NaN too
+                worst = x
+        for p in range(3):
+            de = 0.0
+            for i in range(s):
+                de += B[i] * ke[i, p]
+            energy[p] += h * de
+        step = k0 + j + 1
+        if watch_element.shape[0] > 0:
+            ne = _record_events(q, U[j, end_col], n, watch_element, watch_kind, ea, eb, k, fs, gap,
+                                watch_prev, values, step, ev_step, ev_frac, ev_watch, ev_value, ne)  # fmt: skip
+        if not (worst <= q_limit):
+            return DIVERGED, j + 1, m, ne
+        if step % out_every == 0 and m < out_q.shape[0]:
+            body_accelerations(
+                q, v, U[j, end_col], Ud[j, end_col], Udd[j, end_col], FF[j, end_col],
+                ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
+                minv, Minv, dense_mass, fbody, fscale, acc, rates,
+            )  # fmt: skip
+            _store(m, step, q, v, acc, energy, out_q, out_v, out_a, out_e, out_step)
+            m += 1
+    return OK, nsteps, m, ne
+
+
+@njit(cache=True, inline="always")
+def _store(m, step, q, v, acc, energy, out_q, out_v, out_a, out_e, out_step):
+    for r in range(q.shape[0]):
+        out_q[m, r] = q[r]
+        out_v[m, r] = v[r]
+        out_a[m, r] = acc[r]
+    for p in range(3):
+        out_e[m, p] = energy[p]
+    out_step[m] = step
+
+
+@njit(cache=True)
+def _record_events(q, u, n, watch_element, watch_kind, ea, eb, k, fs, gap,
+                   watch_prev, values, step, ev_step, ev_frac, ev_watch, ev_value, ne):  # fmt: skip
+    _contact_values(q, u, n, watch_element, watch_kind, ea, eb, k, fs, gap, values)
+    for w in range(values.shape[0]):
+        old = watch_prev[w]
+        new = values[w]
+        if (old > 0.0) != (new > 0.0):
+            if ne < ev_step.shape[0]:
+                ev_step[ne] = step
+                ev_frac[ne] = old / (old - new) if old != new else 1.0
+                ev_watch[ne] = w
+                ev_value[ne] = new
+            ne += 1
+        watch_prev[w] = new
+    return ne
+
+
+@njit(cache=True)
+def symplectic_chunk(
+    q, v, energy, h, k0, nsteps,
+    U, Ud, Udd, FF,
+    ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
+    minv, Minv, dense_mass, fbody, fscale,
+    out_every, out_q, out_v, out_a, out_e, out_step, n_out,
+    watch_element, watch_kind, watch_prev, ev_step, ev_frac, ev_watch, ev_value, n_ev,
+    q_limit,
+):  # fmt: skip
+    """Semi-implicit Euler: v₁ = v + h a(t, q, v); q₁ = q + h v₁ (damping on the old
+    velocity, as in the stability analysis). Inputs: column 0 at the step start,
+    column 1 at its end. Energy rates by the rectangle rule (first order, as the method)."""
+    n = q.shape[0]
+    acc = np.zeros(n)
+    rates = np.zeros(3)
+    values = np.zeros(watch_element.shape[0])
+    m = n_out
+    ne = n_ev
+    for j in range(nsteps):
+        body_accelerations(
+            q, v, U[j, 0], Ud[j, 0], Udd[j, 0], FF[j, 0],
+            ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
+            minv, Minv, dense_mass, fbody, fscale, acc, rates,
+        )  # fmt: skip
+        worst = 0.0
+        for r in range(n):
+            v[r] += h * acc[r]
+            q[r] += h * v[r]
+            x = abs(q[r])
+            if not (x <= worst):
+                worst = x
+        for p in range(3):
+            energy[p] += h * rates[p]
+        step = k0 + j + 1
+        if watch_element.shape[0] > 0:
+            ne = _record_events(q, U[j, 1], n, watch_element, watch_kind, ea, eb, k, fs, gap,
+                                watch_prev, values, step, ev_step, ev_frac, ev_watch, ev_value, ne)  # fmt: skip
+        if not (worst <= q_limit):
+            return DIVERGED, j + 1, m, ne
+        if step % out_every == 0 and m < out_q.shape[0]:
+            body_accelerations(
+                q, v, U[j, 1], Ud[j, 1], Udd[j, 1], FF[j, 1],
+                ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
+                minv, Minv, dense_mass, fbody, fscale, acc, rates,
+            )  # fmt: skip
+            _store(m, step, q, v, acc, energy, out_q, out_v, out_a, out_e, out_step)
+            m += 1
+    return OK, nsteps, m, ne
+
+
+@njit(cache=True)
+def affine_chunk(
+    G, H0, H1, z, energy, h, k0, nsteps, W, ns, nf,
+    Qmap, Vmap, VWmap,
+    ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
+    minv, Minv, dense_mass, fbody, fscale,
+    out_every, out_q, out_v, out_a, out_e, out_step, n_out, q_limit,
+):  # fmt: skip
+    """Linear steppers as one affine map per step, z₁ = G z + H0 w₀ + H1 w₁, where
+    ``W[j] = [u, u', u'', F]`` holds the inputs at step j's start and ``W[j+1]`` at
+    its end. Body displacement q = Qmap z and velocity v = Vmap z + VWmap w; the
+    acceleration and energy rates come from :func:`body_accelerations`, the rates
+    integrated by the trapezoid rule (second order, as these steppers)."""
+    nz = z.shape[0]
+    n = Qmap.shape[0]
+    znew = np.zeros(nz)
+    q = np.zeros(n)
+    v = np.zeros(n)
+    acc = np.zeros(n)
+    rates = np.zeros(3)
+    old = np.zeros(3)
+    _affine_body_state(z, W[0], Qmap, Vmap, VWmap, q, v)
+    _rates_at(q, v, W[0], ns, nf, ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
+              minv, Minv, dense_mass, fbody, fscale, acc, old)  # fmt: skip
+    m = n_out
+    for j in range(nsteps):
+        w0 = W[j]
+        w1 = W[j + 1]
+        for r in range(nz):
+            s = 0.0
+            for l in range(nz):
+                s += G[r, l] * z[l]
+            for l in range(w0.shape[0]):
+                s += H0[r, l] * w0[l] + H1[r, l] * w1[l]
+            znew[r] = s
+        for r in range(nz):
+            z[r] = znew[r]
+        _affine_body_state(z, w1, Qmap, Vmap, VWmap, q, v)
+        _rates_at(q, v, w1, ns, nf, ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
+                  minv, Minv, dense_mass, fbody, fscale, acc, rates)  # fmt: skip
+        worst = 0.0
+        for r in range(n):
+            x = abs(q[r])
+            if not (x <= worst):
+                worst = x
+        for p in range(3):
+            energy[p] += 0.5 * h * (old[p] + rates[p])
+            old[p] = rates[p]
+        step = k0 + j + 1
+        if not (worst <= q_limit):
+            return DIVERGED, j + 1, m, 0
+        if step % out_every == 0 and m < out_q.shape[0]:
+            _store(m, step, q, v, acc, energy, out_q, out_v, out_a, out_e, out_step)
+            m += 1
+    return OK, nsteps, m, 0
+
+
+@njit(cache=True, inline="always")
+def _affine_body_state(z, w, Qmap, Vmap, VWmap, q, v):
+    for r in range(Qmap.shape[0]):
+        sq = 0.0
+        sv = 0.0
+        for l in range(z.shape[0]):
+            sq += Qmap[r, l] * z[l]
+            sv += Vmap[r, l] * z[l]
+        for l in range(w.shape[0]):
+            sv += VWmap[r, l] * w[l]
+        q[r] = sq
+        v[r] = sv
+
+
+@njit(cache=True, inline="always")
+def _rates_at(q, v, w, ns, nf, ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
+              minv, Minv, dense_mass, fbody, fscale, acc, rates):  # fmt: skip
+    body_accelerations(
+        q, v, w[:ns], w[ns:2 * ns], w[2 * ns:3 * ns], w[3 * ns:3 * ns + nf],
+        ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
+        minv, Minv, dense_mass, fbody, fscale, acc, rates,
+    )  # fmt: skip

@@ -1,0 +1,766 @@
+"""Time simulation: fixed-step runs with any stepper of the catalogue, and scipy's
+adaptive integrators for comparison.
+
+The driver owns the time grid, the inputs, the output and the checks; a compiled
+kernel (:mod:`lumped.kernels`) only steps. The run goes in chunks of
+:data:`CHUNK_STEPS` steps; between chunks the driver reports progress, asks whether
+to cancel and checks for divergence. Output is decimated inside the kernel, so
+memory follows the samples kept, not the steps taken.
+
+Conventions: times are ``t_k = k·h`` (computed, never accumulated), with one
+shortened last step when the duration is not a whole number of steps; samples are
+the stepper's own states at every ``output_every``-th step plus t = 0 and the end;
+displacements are from static equilibrium; element forces are total forces (static
+included, tension positive) and deflections are from static equilibrium.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from collections.abc import Callable
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from lumped import kernels
+from lumped.assemble import DENSE_LIMIT, Matrices, assemble, mass_solver
+from lumped.errors import LumpedError
+from lumped.excitation import Signal, signal_for
+from lumped.model import System
+from lumped.stability import StepCheck, check_step, step_count
+from lumped.static import StaticState, static_equilibrium
+from lumped.steppers import ExactStepper, RungeKuttaStepper, SecondOrderStepper, Stepper, get_stepper
+
+__all__ = ["RunError", "Event", "RunResult", "simulate", "ADAPTIVE_METHODS", "CHUNK_STEPS"]
+
+#: Steps per compiled chunk between the driver's progress/cancel/divergence checks.
+CHUNK_STEPS = 8192
+#: A body displacement beyond this many times the run's displacement scale diverged.
+DIVERGENCE_FACTOR = 1e6
+#: Default cap on the memory a run's output may take: a quarter of the machine's.
+MEMORY_FRACTION = 0.25
+#: Dense mass matrices (inerters between bodies) up to this many bodies.
+DENSE_MASS_LIMIT = 500
+#: scipy.integrate.solve_ivp methods, by the ids the tool uses for them.
+ADAPTIVE_METHODS = {
+    "adaptive-rk45": "RK45",
+    "adaptive-dop853": "DOP853",
+    "adaptive-radau": "Radau",
+    "adaptive-bdf": "BDF",
+    "adaptive-lsoda": "LSODA",
+}
+
+
+class RunError(LumpedError):
+    """A run that cannot start (bad settings, too large, unsupported combination)."""
+
+
+@dataclass(frozen=True)
+class Event:
+    """A contact change: ``kind`` is "lift-off" / "landing" for one-sided springs,
+    "stop-contact" / "stop-release" for end stops, "support-jump" for a step in a
+    support's motion; ``time`` in s (interpolated within the step)."""
+
+    time: float
+    element: str
+    kind: str
+
+
+@dataclass
+class RunResult:
+    """A run's samples and evidence. Arrays are (samples,) or (samples, items), SI.
+
+    ``displacement``/``velocity``/``acceleration``: bodies, in ``body_ids`` order;
+    ``deflection``/``force``: elements, in ``element_ids`` order; ``support_*``:
+    supports; ``force_input``: each force item's value in N (after ``scale``).
+    Energy (J): ``kinetic``, ``stored`` (springs relative to static equilibrium),
+    ``dissipated``, ``support_work``, ``force_work`` and ``balance_error`` =
+    kinetic + stored + dissipated − initial energy − work done.
+    ``status`` is "completed", "diverged" or "cancelled"; ``message`` says why.
+    """
+
+    system_name: str
+    stepper: str
+    dt: float
+    duration: float
+    time: np.ndarray
+    body_ids: tuple[str, ...]
+    element_ids: tuple[str, ...]
+    element_kinds: tuple[str, ...]
+    support_ids: tuple[str, ...]
+    force_ids: tuple[str, ...]
+    displacement: np.ndarray
+    velocity: np.ndarray
+    acceleration: np.ndarray
+    deflection: np.ndarray
+    force: np.ndarray
+    support_displacement: np.ndarray
+    support_velocity: np.ndarray
+    force_input: np.ndarray
+    kinetic: np.ndarray
+    stored: np.ndarray
+    dissipated: np.ndarray
+    support_work: np.ndarray
+    force_work: np.ndarray
+    events: list[Event] = field(default_factory=list)
+    status: str = "completed"
+    message: str = ""
+    steps: int = 0
+    check: StepCheck | None = None
+
+    @property
+    def balance_error(self) -> np.ndarray:
+        """Energy not accounted for, J (the stepper's error on the energy balance)."""
+        total = self.kinetic + self.stored + self.dissipated
+        return total - total[0] - (self.support_work - self.support_work[0]) - (
+            self.force_work - self.force_work[0]
+        )
+
+    @property
+    def diverged(self) -> bool:
+        return self.status == "diverged"
+
+    def channels(self) -> dict[str, tuple[str, np.ndarray]]:
+        """Every output channel as ``"ID.quantity" → (unit, values)``, time first."""
+        out: dict[str, tuple[str, np.ndarray]] = {"time": ("s", self.time)}
+        for i, body in enumerate(self.body_ids):
+            out[f"{body}.displacement"] = ("m", self.displacement[:, i])
+            out[f"{body}.velocity"] = ("m/s", self.velocity[:, i])
+            out[f"{body}.acceleration"] = ("m/s^2", self.acceleration[:, i])
+        for e, element in enumerate(self.element_ids):
+            out[f"{element}.force"] = ("N", self.force[:, e])
+            out[f"{element}.deflection"] = ("m", self.deflection[:, e])
+        for s, support in enumerate(self.support_ids):
+            out[f"{support}.displacement"] = ("m", self.support_displacement[:, s])
+            out[f"{support}.velocity"] = ("m/s", self.support_velocity[:, s])
+        for f, item in enumerate(self.force_ids):
+            out[f"{item}.force"] = ("N", self.force_input[:, f])
+        for name in ("kinetic", "stored", "dissipated", "support_work", "force_work"):
+            out[f"energy.{name}"] = ("J", getattr(self, name))
+        out["energy.balance_error"] = ("J", self.balance_error)
+        return out
+
+    def to_frame(self):
+        """The channels as a pandas DataFrame with ``"ID.quantity [unit]"`` columns."""
+        import pandas as pd
+
+        return pd.DataFrame(
+            {f"{name} [{unit}]": values for name, (unit, values) in self.channels().items()}
+        )
+
+
+# --------------------------------------------------------------------------- set-up
+
+
+@dataclass(frozen=True)
+class _Elements:
+    """The element table the kernels read (see :mod:`lumped.kernels`)."""
+
+    ea: np.ndarray
+    eb: np.ndarray
+    kind: np.ndarray
+    k: np.ndarray
+    c: np.ndarray
+    c2: np.ndarray
+    fs: np.ndarray
+    acts: np.ndarray
+    gap: np.ndarray
+    gk: np.ndarray
+    coff: np.ndarray
+    cv: np.ndarray
+    cf: np.ndarray
+
+    def args(self):
+        return (self.ea, self.eb, self.kind, self.k, self.c, self.c2, self.fs, self.acts,
+                self.gap, self.gk, self.coff, self.cv, self.cf)  # fmt: skip
+
+
+def _element_table(matrices: Matrices, static: StaticState) -> _Elements:
+    m = matrices
+    n, ne = m.n, len(m.element_ids)
+    body_cols = m.D.tocoo()
+    support_cols = m.D_s.tocoo()
+    ea = np.full(ne, -1, dtype=np.int64)
+    eb = np.full(ne, -1, dtype=np.int64)
+    for rows, cols, data, offset in ((body_cols.row, body_cols.col, body_cols.data, 0),
+                                     (support_cols.row, support_cols.col, support_cols.data, n)):  # fmt: skip
+        lower = data < 0
+        ea[rows[lower]] = cols[lower] + offset
+        eb[rows[~lower]] = cols[~lower] + offset
+    code = {"spring": kernels.SPRING, "damper": kernels.DAMPER, "inerter": kernels.INERTER}
+    kind = np.array([code[k] for k in m.element_kinds], dtype=np.int64)
+    k = np.where(kind == kernels.INERTER, m.inertance, m.stiffness)
+    c = m.damping.copy()
+    c2 = m.damping.copy()
+    nl = m.nonlinear
+    kind[nl.asymmetric_index] = kernels.ASYMMETRIC_DAMPER
+    c[nl.asymmetric_index] = nl.asymmetric_rebound
+    c2[nl.asymmetric_index] = nl.asymmetric_compression
+    kind[nl.curve_index] = kernels.CURVE_DAMPER
+    coff = np.zeros(ne + 1, dtype=np.int64)
+    for j, e in enumerate(nl.curve_index):
+        coff[e] = nl.curve_offset[j]
+        coff[e + 1] = nl.curve_offset[j + 1]
+    acts = np.zeros(ne)
+    acts[nl.one_sided_index] = nl.one_sided_sign
+    gap = np.full(ne, np.inf)
+    gk = np.zeros(ne)
+    gap[nl.end_stop_index] = nl.end_stop_gap
+    gk[nl.end_stop_index] = nl.end_stop_stiffness
+    fs = np.where(kind == kernels.SPRING, static.element_force, 0.0)
+    cv = nl.curve_velocity if len(nl.curve_velocity) else np.zeros(1)
+    cf = nl.curve_force if len(nl.curve_force) else np.zeros(1)
+    return _Elements(ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf)
+
+
+@dataclass(frozen=True)
+class _Inputs:
+    """Support motions and force values as functions of time."""
+
+    supports: list[tuple[Signal | None, float]]  # (signal, delay) per support
+    forces: list[Signal]
+    scales: np.ndarray
+
+    def at(self, t: np.ndarray):
+        """u, u', u'' (…, n_supports) and force-input values (…, n_forces) at times t."""
+        t = np.asarray(t, dtype=float)
+        shape = t.shape
+        ns, nf = len(self.supports), len(self.forces)
+        u = np.zeros(shape + (ns,))
+        ud = np.zeros(shape + (ns,))
+        udd = np.zeros(shape + (ns,))
+        for s, (signal, delay) in enumerate(self.supports):
+            if signal is not None:
+                local = t - delay
+                u[..., s] = signal.value(local)
+                ud[..., s] = signal.rate(local)
+                udd[..., s] = signal.rate2(local)
+        F = np.zeros(shape + (nf,))
+        for j, signal in enumerate(self.forces):
+            F[..., j] = signal.value(t)
+        return u, ud, udd, F
+
+    def jumps(self, duration: float) -> list[tuple[float, int, float]]:
+        """(time, support index, size) of every jump in support position in [0, T)."""
+        out = []
+        for s, (signal, delay) in enumerate(self.supports):
+            if signal is None:
+                continue
+            for time, size in signal.jumps():
+                if 0.0 <= time + delay < duration:
+                    out.append((time + delay, s, size))
+        return sorted(out)
+
+    def scale(self) -> float:
+        """Largest amplitude of any support motion, m (0 if none)."""
+        return max((sig.amplitude for sig, _ in self.supports if sig is not None), default=0.0)
+
+
+def _inputs(system: System, matrices: Matrices) -> _Inputs:
+    supports = []
+    for s in matrices.support_ids:
+        support = system.supports[s]
+        signal = signal_for(system, support.motion) if support.motion else None
+        supports.append((signal, support.delay))
+    forces = [signal_for(system, system.forces[f].input) for f in matrices.force_ids]
+    return _Inputs(supports, forces, np.array([system.forces[f].scale for f in matrices.force_ids]))
+
+
+def _mass_arguments(matrices: Matrices):
+    if matrices.mass_is_diagonal:
+        return 1.0 / matrices.M.diagonal(), np.zeros((1, 1)), False
+    if matrices.n > DENSE_MASS_LIMIT:
+        raise RunError(
+            f"inerters between bodies need a dense mass inverse, limited to {DENSE_MASS_LIMIT} "
+            f"bodies; this system has {matrices.n}"
+        )
+    return np.zeros(matrices.n), np.linalg.inv(matrices.M.toarray()), True
+
+
+def memory_cap() -> int:
+    """Bytes a run's output may take by default: a quarter of the machine's memory."""
+    try:
+        total = os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
+    except (ValueError, OSError, AttributeError):
+        total = 8 * 2**30
+    return int(MEMORY_FRACTION * total)
+
+
+# --------------------------------------------------------------------------- the run
+
+
+def simulate(
+    system: System,
+    stepper: str | Stepper | None = None,
+    dt: float | None = None,
+    duration: float | None = None,
+    output_rate: float | None = None,
+    output_every: int | None = None,
+    max_output_bytes: int | None = None,
+    progress: Callable[[float], None] | None = None,
+    cancel: Callable[[], bool] | None = None,
+    check: bool = True,
+) -> RunResult:
+    """Run ``system`` with a fixed-step ``stepper`` (id or :class:`Stepper`) or an
+    adaptive scipy method (``"adaptive-rk45"`` …), from static equilibrium plus the
+    bodies' initial displacements and velocities.
+
+    Parameters
+    ----------
+    dt, duration : float
+        Step and run length, s (default: the file's ``[run]``).
+    output_rate : float
+        Samples per second, Hz: every ``round(1/(rate·dt))`` steps (default: the file's
+        ``output_rate``, else every step). ``output_every`` gives the step count directly.
+    max_output_bytes : int
+        Refuse runs whose output would need more (default :func:`memory_cap`).
+    progress : callable(fraction)
+        Called between chunks with the fraction done.
+    cancel : callable() -> bool
+        Called between chunks; True stops the run, keeping the samples so far.
+    check : bool
+        Attach the step check (:func:`lumped.stability.check_step`) of this stepper and step.
+
+    Raises
+    ------
+    RunError
+        Missing or bad settings, an output too large for memory, or a stepper that
+        cannot run this system.
+    """
+    run = system.run
+    stepper = stepper if stepper is not None else run.stepper
+    dt = dt if dt is not None else run.dt
+    duration = duration if duration is not None else run.duration
+    output_rate = output_rate if output_rate is not None else run.output_rate
+    if stepper is None:
+        raise RunError("no stepper given and the system's [run] table names none")
+    if duration is None or not (math.isfinite(duration) and duration > 0):
+        raise RunError(f"duration must be a positive time, got {duration!r}")
+    if isinstance(stepper, str) and stepper in ADAPTIVE_METHODS:
+        from lumped.adaptive import simulate_adaptive
+
+        return simulate_adaptive(system, ADAPTIVE_METHODS[stepper], stepper, duration, output_rate or (1 / dt if dt else None))
+    if isinstance(stepper, str):
+        try:
+            stepper = get_stepper(stepper)
+        except KeyError as exc:
+            raise RunError(exc.args[0]) from None
+    if dt is None or not (math.isfinite(dt) and dt > 0):
+        raise RunError(f"dt must be a positive time step, got {dt!r}")
+    if dt > duration:
+        dt = duration
+    matrices = assemble(system)
+    if matrices.n == 0:
+        raise RunError("the system has no bodies")
+    static = static_equilibrium(matrices)
+    steps = step_count(dt, duration)
+    if output_every is None:
+        output_every = max(1, round(1.0 / (output_rate * dt))) if output_rate else 1
+    samples = steps // output_every + 2
+    width = 3 * matrices.n + 2 * len(matrices.element_ids) + 2 * len(matrices.support_ids) + len(matrices.force_ids) + 7
+    need = samples * width * 8 * 2  # kernel buffers plus the result's derived arrays
+    cap = memory_cap() if max_output_bytes is None else max_output_bytes
+    if need > cap:
+        raise RunError(
+            f"the output would need {need / 2**20:,.0f} MiB ({samples:,} samples × {width} channels), "
+            f"over the cap of {cap / 2**20:,.0f} MiB; lower the output rate or raise the cap"
+        )
+    verdict = check_step(matrices, stepper, dt, duration) if check else None
+    engine = _Engine(system, matrices, static, stepper, dt, duration, steps, output_every, samples)
+    return engine.run(progress, cancel, verdict)
+
+
+class _Engine:
+    """One fixed-step run: set-up, chunk loop, jumps, post-processing."""
+
+    def __init__(self, system, matrices, static, stepper, dt, duration, steps, output_every, samples):
+        self.system = system
+        self.m = matrices
+        self.static = static
+        self.stepper = stepper
+        self.h = dt
+        self.T = duration
+        self.steps = steps
+        self.every = output_every
+        self.table = _element_table(matrices, static)
+        self.inputs = _inputs(system, matrices)
+        self.minv, self.Minv, self.dense_mass = _mass_arguments(matrices)
+        self.fbody = np.array([matrices.body_ids.index(system.forces[f].on) for f in matrices.force_ids], dtype=np.int64)
+        self.fscale = self.inputs.scales.astype(float)
+        n = matrices.n
+        self.q = np.array([system.bodies[b].initial_displacement for b in matrices.body_ids], dtype=float)
+        self.v = np.array([system.bodies[b].initial_velocity for b in matrices.body_ids], dtype=float)
+        self.energy = np.zeros(3)
+        self.out_q = np.zeros((samples, n))
+        self.out_v = np.zeros((samples, n))
+        self.out_a = np.zeros((samples, n))
+        self.out_e = np.zeros((samples, 3))
+        self.out_step = np.zeros(samples, dtype=np.int64)
+        self.count = 0
+        self.events: list[Event] = []
+        scale = max(
+            float(np.max(np.abs(static.displacement))) if n else 0.0,
+            self.inputs.scale(),
+            float(np.max(np.abs(self.q))) if n else 0.0,
+            1e-6,
+        )
+        self.q_limit = DIVERGENCE_FACTOR * scale
+        self._prepare_watch()
+
+    # -- set-up per stepper
+
+    def _prepare_watch(self):
+        nl = self.m.nonlinear
+        elements = list(nl.one_sided_index) + list(nl.end_stop_index)
+        kinds = [0] * len(nl.one_sided_index) + [1] * len(nl.end_stop_index)
+        self.watch_element = np.array(elements, dtype=np.int64)
+        self.watch_kind = np.array(kinds, dtype=np.int64)
+        self.watch_sign = np.array(list(nl.one_sided_sign) + [0.0] * len(nl.end_stop_index))
+        self.ev_capacity = 65536
+        self.ev_step = np.zeros(self.ev_capacity, dtype=np.int64)
+        self.ev_frac = np.zeros(self.ev_capacity)
+        self.ev_watch = np.zeros(self.ev_capacity, dtype=np.int64)
+        self.ev_value = np.zeros(self.ev_capacity)
+        self.n_ev = 0
+        self.watch_prev = np.zeros(len(elements))
+        if len(elements):
+            u, *_ = self.inputs.at(np.array(0.0))
+            kernels._contact_values(self.q, u, self.m.n, self.watch_element, self.watch_kind,
+                                    self.table.ea, self.table.eb, self.table.k, self.table.fs,
+                                    self.table.gap, self.watch_prev)  # fmt: skip
+
+    def _store_initial(self):
+        u, ud, udd, F = self.inputs.at(np.array(0.0))
+        acc, rates = np.zeros(self.m.n), np.zeros(3)
+        self._accelerations(self.q, self.v, u, ud, udd, F, acc, rates)
+        i = self.count
+        self.out_q[i], self.out_v[i], self.out_a[i], self.out_e[i], self.out_step[i] = self.q, self.v, acc, self.energy, 0
+        self.count += 1
+
+    def _accelerations(self, q, v, u, ud, udd, F, acc, rates):
+        kernels.body_accelerations(q, v, u, ud, udd, F, *self.table.args(), self.minv, self.Minv,
+                                   self.dense_mass, self.fbody, self.fscale, acc, rates)  # fmt: skip
+
+    # -- the loop
+
+    def run(self, progress, cancel, verdict) -> RunResult:
+        stepper = self.stepper
+        if isinstance(stepper, RungeKuttaStepper) and stepper.explicit:
+            advance = self._rk_advance()
+        elif isinstance(stepper, SecondOrderStepper) and stepper.scheme == "symplectic-euler":
+            advance = self._symplectic_advance()
+        else:
+            advance = self._affine_advance()
+        jumps = self.inputs.jumps(self.T)
+        status, message = "completed", ""
+        for time, s, size in [j for j in jumps if j[0] == 0.0]:
+            self._apply_jump(s, size, time)
+        self._store_initial()
+        interior = [j for j in jumps if j[0] > 0.0]
+        k = 0
+        while k < self.steps:
+            # Step j covers [j·h, (j+1)·h); the one holding the next jump is split.
+            jump_step = math.floor(interior[0][0] / self.h + 1e-12) if interior else self.steps
+            end = min(self.steps, k + CHUNK_STEPS, jump_step)
+            if interior and jump_step <= k:
+                # The step containing the jump: two substeps either side of it.
+                t_jump, s, size = interior.pop(0)
+                result = self._split_step(advance, k, t_jump, s, size)
+                k += 1
+            else:
+                result = advance(k, end - k)
+                k = end if result[0] == kernels.OK else k + result[1]
+            if result[0] == kernels.DIVERGED:
+                status, message = "diverged", self._divergence_message(k, verdict)
+                break
+            if progress is not None:
+                progress(k / self.steps)
+            if cancel is not None and cancel():
+                status, message = "cancelled", f"cancelled at t = {self._time(k):.6g} s"
+                break
+        if status == "completed" and self.out_step[self.count - 1] != self.steps:
+            self._store_current(self.steps)
+        elif status != "completed" and self.out_step[self.count - 1] != k:
+            self._store_current(k)
+        return self._result(status, message, k, verdict)
+
+    def _time(self, k: int) -> float:
+        return self.T if k >= self.steps else k * self.h
+
+    def _step_sizes(self, k0: int, count: int) -> np.ndarray:
+        h = np.full(count, self.h)
+        if k0 + count == self.steps:
+            h[-1] = self.T - (self.steps - 1) * self.h
+        return h
+
+    def _store_current(self, k: int):
+        u, ud, udd, F = self.inputs.at(np.array(self._time(k)))
+        acc, rates = np.zeros(self.m.n), np.zeros(3)
+        self._accelerations(self.q, self.v, u, ud, udd, F, acc, rates)
+        if self.count >= len(self.out_step):
+            self._grow()
+        i = self.count
+        self.out_q[i], self.out_v[i], self.out_a[i], self.out_e[i], self.out_step[i] = self.q, self.v, acc, self.energy, k
+        self.count += 1
+
+    def _grow(self):
+        for name in ("out_q", "out_v", "out_a", "out_e", "out_step"):
+            array = getattr(self, name)
+            setattr(self, name, np.concatenate([array, np.zeros_like(array[:8])]))
+
+    def _stage_inputs(self, k0: int, count: int, offsets: np.ndarray, h: np.ndarray):
+        t = (k0 + np.arange(count))[:, None] * self.h + offsets[None, :] * h[:, None]
+        return self.inputs.at(t)
+
+    def _uniform_runs(self, k0: int, count: int):
+        """Split [k0, k0+count) so that a shortened last step runs on its own."""
+        if k0 + count == self.steps and self.T - (self.steps - 1) * self.h != self.h and count > 1:
+            return [(k0, count - 1), (k0 + count - 1, 1)]
+        return [(k0, count)]
+
+    def _rk_advance(self):
+        a, b, c = self.stepper.tableau.arrays()
+        offsets = np.unique(np.concatenate([c, [1.0]]))
+        stage_col = np.searchsorted(offsets, c).astype(np.int64)
+        end_col = int(np.searchsorted(offsets, 1.0))
+
+        def advance(k0, count, h=None):
+            for start, n in self._uniform_runs(k0, count) if h is None else [(k0, count)]:
+                step_h = self._step_sizes(start, n)[0] if h is None else h
+                U, Ud, Udd, F = self._stage_inputs(start, n, offsets, np.full(n, step_h), ) if h is None else self._inputs_from(start, offsets, step_h)
+                status, done, self.count, self.n_ev = kernels.rk_chunk(
+                    a, b, stage_col, end_col, self.q, self.v, self.energy, step_h, start, n,
+                    U, Ud, Udd, F, *self.table.args(), self.minv, self.Minv, self.dense_mass,
+                    self.fbody, self.fscale, self.every, self.out_q, self.out_v, self.out_a,
+                    self.out_e, self.out_step, self.count, self.watch_element, self.watch_kind,
+                    self.watch_prev, self.ev_step, self.ev_frac, self.ev_watch, self.ev_value,
+                    self.n_ev, self.q_limit,
+                )  # fmt: skip
+                if status != kernels.OK:
+                    return status, start - k0 + done
+            return kernels.OK, count
+
+        self._offsets = offsets
+        return advance
+
+    def _inputs_from(self, start_time_step, offsets, h):
+        t0 = self._substep_start
+        t = t0 + offsets[None, :] * h
+        return self.inputs.at(t)
+
+    def _symplectic_advance(self):
+        offsets = np.array([0.0, 1.0])
+
+        def advance(k0, count, h=None):
+            for start, n in self._uniform_runs(k0, count) if h is None else [(k0, count)]:
+                step_h = self._step_sizes(start, n)[0] if h is None else h
+                U, Ud, Udd, F = self._stage_inputs(start, n, offsets, np.full(n, step_h)) if h is None else self._inputs_from(start, offsets, step_h)
+                status, done, self.count, self.n_ev = kernels.symplectic_chunk(
+                    self.q, self.v, self.energy, step_h, start, n, U, Ud, Udd, F,
+                    *self.table.args(), self.minv, self.Minv, self.dense_mass, self.fbody,
+                    self.fscale, self.every, self.out_q, self.out_v, self.out_a, self.out_e,
+                    self.out_step, self.count, self.watch_element, self.watch_kind,
+                    self.watch_prev, self.ev_step, self.ev_frac, self.ev_watch, self.ev_value,
+                    self.n_ev, self.q_limit,
+                )  # fmt: skip
+                if status != kernels.OK:
+                    return status, start - k0 + done
+            return kernels.OK, count
+
+        self._offsets = offsets
+        return advance
+
+    def _affine_advance(self):
+        from lumped.linear_steppers import affine_maps
+
+        if self.m.nonlinear.count:
+            names = ", ".join(self.m.element_ids[i] for i in _nonlinear_indices(self.m))
+            raise RunError(
+                f"{self.stepper.id} runs linear systems only; this system has nonlinear "
+                f"elements ({names}); use an explicit stepper (rk4, rk3, heun, symplectic-euler)"
+            )
+        if self.m.n > DENSE_LIMIT:
+            raise RunError(
+                f"{self.stepper.id} builds a dense one-step matrix, limited to {DENSE_LIMIT} bodies; "
+                f"this system has {self.m.n}; use an explicit stepper (rk4) for larger systems"
+            )
+        cache: dict[float, tuple] = {}
+        ns, nf = len(self.m.support_ids), len(self.m.force_ids)
+
+        def maps(h):
+            if h not in cache:
+                cache[h] = affine_maps(self.m, self.stepper, h)
+            return cache[h]
+
+        self._z = None
+
+        def advance(k0, count, h=None):
+            for start, n in self._uniform_runs(k0, count) if h is None else [(k0, count)]:
+                step_h = self._step_sizes(start, n)[0] if h is None else h
+                G, H0, H1, Qmap, Vmap, VWmap, to_state = maps(step_h)
+                t0 = start * self.h if h is None else self._substep_start
+                times = t0 + np.arange(n + 1) * step_h
+                if h is None and start + n == self.steps:
+                    times[-1] = self.T
+                u, ud, udd, F = self.inputs.at(times)
+                W = np.concatenate([u, ud, udd, F], axis=1)
+                z = to_state(self.q, self.v, W[0])
+                status, done, self.count, _ = kernels.affine_chunk(
+                    G, H0, H1, z, self.energy, step_h, start, n, W, ns, nf, Qmap, Vmap, VWmap,
+                    *self.table.args(), self.minv, self.Minv, self.dense_mass, self.fbody,
+                    self.fscale, self.every, self.out_q, self.out_v, self.out_a, self.out_e,
+                    self.out_step, self.count, self.q_limit,
+                )  # fmt: skip
+                last = min(done, n)
+                self.q = Qmap @ z
+                self.v = Vmap @ z + VWmap @ W[last]
+                if status != kernels.OK:
+                    return status, start - k0 + done
+            return kernels.OK, count
+
+        return advance
+
+    def _split_step(self, advance, k, t_jump, s, size):
+        """Step k → k+1 in two substeps around a jump at ``t_jump``."""
+        t_start = k * self.h
+        t_end = self._time(k + 1)
+        every, self.every = self.every, 1 << 62  # no samples at the inner point
+        status = (kernels.OK, 0)
+        if t_jump > t_start:
+            self._substep_start = t_start
+            status = advance(k, 1, t_jump - t_start)
+        self.every = every
+        if status[0] != kernels.OK:
+            return status
+        self._apply_jump(s, size, t_jump)
+        self._substep_start = t_jump
+        return advance(k, 1, t_end - t_jump)
+
+    def _apply_jump(self, s: int, size: float, time: float):
+        """A support jumps by ``size``: dampers to it give the bodies an impulse,
+        Δv = −M⁻¹ C_s e_s · size; the change of energy is booked as support work."""
+        before = self._energy_now(time - 0.0)
+        impulse = -(self.m.C_s[:, [s]].toarray().ravel()) * size
+        if self.m.M_s[:, [s]].nnz:
+            raise RunError(
+                f"support {self.m.support_ids[s]!r} jumps at t = {time:g} s through an inerter, "
+                "which would need an infinite force; give it a bump or a table with a finite rise"
+            )
+        self.v = self.v + mass_solver(self.m)(impulse)
+        after = self._energy_now(time, shift=(s, size))
+        self.energy[1] += after - before
+        self.events.append(Event(time, self.m.support_ids[s], "support-jump"))
+
+    def _energy_now(self, time: float, shift=None) -> float:
+        """Kinetic plus stored energy with supports at their positions just before
+        ``time`` (plus ``shift``), J."""
+        u, ud, udd, _ = self.inputs.at(np.array(time - 1e-12 * max(1.0, time)))
+        u = np.array(u, dtype=float)
+        if shift is not None:
+            u[shift[0]] += shift[1]
+        kinetic = 0.5 * float(self.v @ (self.m.M @ self.v))
+        deflection = np.zeros(len(self.m.element_ids))
+        force = np.zeros_like(deflection)
+        energy = np.zeros_like(deflection)
+        kernels.element_state(self.q, self.v, np.zeros(self.m.n), u, ud, udd, *self.table.args(),
+                              deflection, force, energy)  # fmt: skip
+        return kinetic + float(energy[self.table.kind == kernels.SPRING].sum())
+
+    def _divergence_message(self, k: int, verdict: StepCheck | None) -> str:
+        body = self.m.body_ids[int(np.nanargmax(np.where(np.isfinite(self.q), np.abs(self.q), np.inf)))]
+        text = f"run diverged at t = {self._time(k):.6g} s (step {k:,}): body {body!r} grew without bound"
+        if verdict is not None and verdict.max_stable_dt is not None and math.isfinite(verdict.max_stable_dt):
+            mode = verdict.modes[verdict.limiting_mode]
+            if self.h > verdict.max_stable_dt:
+                text += (
+                    f"; dt = {self.h:.6g} s breaks the {self.stepper.id} stability limit "
+                    f"{verdict.max_stable_dt:.6g} s of the {mode.natural_frequency_hz:.5g} Hz mode"
+                )
+            else:
+                text += (
+                    f"; dt is within the linear stability limit {verdict.max_stable_dt:.6g} s, so a "
+                    "nonlinear element (end stop, one-sided spring) stiffened the system beyond it"
+                )
+        elif verdict is not None and verdict.max_stable_dt is None:
+            text += f"; no positive step is stable with {self.stepper.id} on this system"
+        return text
+
+    # -- results
+
+    def _result(self, status, message, k, verdict) -> RunResult:
+        count = self.count
+        steps = self.out_step[:count]
+        time = np.where(steps >= self.steps, self.T, steps * self.h)
+        q, v, a = self.out_q[:count], self.out_v[:count], self.out_a[:count]
+        u, ud, udd, F = self.inputs.at(time)
+        ne = len(self.m.element_ids)
+        deflection = np.zeros((count, ne))
+        force = np.zeros((count, ne))
+        stored = np.zeros(count)
+        energy = np.zeros(ne)
+        springs = self.table.kind == kernels.SPRING
+        inerters = self.table.kind == kernels.INERTER
+        kinetic = 0.5 * np.einsum("ij,j,ij->i", v, self.m.mass, v)
+        for i in range(count):
+            kernels.element_state(q[i], v[i], a[i], u[i], ud[i], udd[i], *self.table.args(),
+                                  deflection[i], force[i], energy)  # fmt: skip
+            stored[i] = energy[springs].sum()
+            kinetic[i] += energy[inerters].sum()
+        events = self._events()
+        return RunResult(
+            system_name=self.system.name,
+            stepper=self.stepper.id,
+            dt=self.h,
+            duration=self.T,
+            time=time,
+            body_ids=self.m.body_ids,
+            element_ids=self.m.element_ids,
+            element_kinds=self.m.element_kinds,
+            support_ids=self.m.support_ids,
+            force_ids=self.m.force_ids,
+            displacement=q.copy(),
+            velocity=v.copy(),
+            acceleration=a.copy(),
+            deflection=deflection,
+            force=force,
+            support_displacement=u,
+            support_velocity=ud,
+            force_input=F * self.fscale if len(self.fscale) else F,
+            kinetic=kinetic,
+            stored=stored,
+            dissipated=self.out_e[:count, 0].copy(),
+            support_work=self.out_e[:count, 1].copy(),
+            force_work=self.out_e[:count, 2].copy(),
+            events=events,
+            status=status,
+            message=message,
+            steps=k,
+            check=verdict,
+        )
+
+    def _events(self) -> list[Event]:
+        out = list(self.events)
+        count = min(self.n_ev, self.ev_capacity)
+        for j in range(count):
+            w = int(self.ev_watch[j])
+            element = self.m.element_ids[int(self.watch_element[w])]
+            step = int(self.ev_step[j])
+            t1 = self._time(step)
+            t0 = (step - 1) * self.h
+            time = t0 + float(self.ev_frac[j]) * (t1 - t0)
+            positive = self.ev_value[j] > 0
+            if self.watch_kind[w] == 0:
+                lifted = positive if self.watch_sign[w] > 0 else not positive
+                kind = "lift-off" if lifted else "landing"
+            else:
+                kind = "stop-contact" if positive else "stop-release"
+            out.append(Event(time, element, kind))
+        if self.n_ev > self.ev_capacity:
+            out.append(Event(math.nan, "", f"{self.n_ev - self.ev_capacity} more events not kept"))
+        return sorted(out, key=lambda e: (e.time, e.element))
+
+
+def _nonlinear_indices(m: Matrices) -> list[int]:
+    nl = m.nonlinear
+    return sorted(set(nl.end_stop_index) | set(nl.one_sided_index) | set(nl.asymmetric_index) | set(nl.curve_index))
