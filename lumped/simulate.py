@@ -222,8 +222,13 @@ class _Inputs:
     forces: list[Signal]
     scales: np.ndarray
 
-    def at(self, t: np.ndarray):
-        """u, u', u'' (…, n_supports) and force-input values (…, n_forces) at times t."""
+    def at(self, t: np.ndarray, left=False):
+        """u, u', u'' (…, n_supports) and force-input values (…, n_forces) at times t.
+
+        Signals are right-continuous; where ``left`` (a bool, or an array broadcasting
+        with ``t``) is true, a time that falls on a jump gets the value just before it,
+        as the end of a step that stops at the jump must see.
+        """
         t = np.asarray(t, dtype=float)
         shape = t.shape
         ns, nf = len(self.supports), len(self.forces)
@@ -239,6 +244,11 @@ class _Inputs:
         F = np.zeros(shape + (nf,))
         for j, signal in enumerate(self.forces):
             F[..., j] = signal.value(t)
+        if np.any(left):
+            left = np.broadcast_to(left, shape)
+            for s, (signal, delay) in enumerate(self.supports):
+                for time, size in signal.jumps() if signal is not None else ():
+                    u[..., s] -= np.where(left & (t == time + delay), size, 0.0)
         return u, ud, udd, F
 
     def jumps(self, duration: float) -> list[tuple[float, int, float]]:
@@ -511,7 +521,9 @@ class _Engine:
 
     def _stage_inputs(self, k0: int, count: int, offsets: np.ndarray, h: np.ndarray):
         t = (k0 + np.arange(count))[:, None] * self.h + offsets[None, :] * h[:, None]
-        return self.inputs.at(t)
+        if k0 + count == self.steps:
+            t[-1, offsets == 1.0] = self.T
+        return self.inputs.at(t, left=offsets[None, :] > 0)
 
     def _uniform_runs(self, k0: int, count: int):
         """Split [k0, k0+count) so that a shortened last step runs on its own."""
@@ -528,7 +540,7 @@ class _Engine:
         def advance(k0, count, h=None):
             for start, n in self._uniform_runs(k0, count) if h is None else [(k0, count)]:
                 step_h = self._step_sizes(start, n)[0] if h is None else h
-                U, Ud, Udd, F = self._stage_inputs(start, n, offsets, np.full(n, step_h), ) if h is None else self._inputs_from(start, offsets, step_h)
+                U, Ud, Udd, F = self._stage_inputs(start, n, offsets, np.full(n, step_h), ) if h is None else self._inputs_from(offsets, step_h)
                 status, done, self.count, self.n_ev = kernels.rk_chunk(
                     a, b, stage_col, end_col, self.q, self.v, self.energy, step_h, start, n,
                     U, Ud, Udd, F, *self.table.args(), self.minv, self.Minv, self.dense_mass,
@@ -544,10 +556,10 @@ class _Engine:
         self._offsets = offsets
         return advance
 
-    def _inputs_from(self, start_time_step, offsets, h):
-        t0 = self._substep_start
-        t = t0 + offsets[None, :] * h
-        return self.inputs.at(t)
+    def _inputs_from(self, offsets, h):
+        """Stage inputs of one substep of length ``h`` from ``self._substep_start``."""
+        t = self._substep_start + offsets[None, :] * h
+        return self.inputs.at(t, left=offsets[None, :] > 0)
 
     def _symplectic_advance(self):
         offsets = np.array([0.0, 1.0])
@@ -555,7 +567,7 @@ class _Engine:
         def advance(k0, count, h=None):
             for start, n in self._uniform_runs(k0, count) if h is None else [(k0, count)]:
                 step_h = self._step_sizes(start, n)[0] if h is None else h
-                U, Ud, Udd, F = self._stage_inputs(start, n, offsets, np.full(n, step_h)) if h is None else self._inputs_from(start, offsets, step_h)
+                U, Ud, Udd, F = self._stage_inputs(start, n, offsets, np.full(n, step_h)) if h is None else self._inputs_from(offsets, step_h)
                 status, done, self.count, self.n_ev = kernels.symplectic_chunk(
                     self.q, self.v, self.energy, step_h, start, n, U, Ud, Udd, F,
                     *self.table.args(), self.minv, self.Minv, self.dense_mass, self.fbody,
@@ -603,7 +615,8 @@ class _Engine:
                 times = t0 + np.arange(n + 1) * step_h
                 if h is None and start + n == self.steps:
                     times[-1] = self.T
-                u, ud, udd, F = self.inputs.at(times)
+                ends = np.arange(n + 1) > 0
+                u, ud, udd, F = self.inputs.at(times, left=ends)
                 W = np.concatenate([u, ud, udd, F], axis=1)
                 z = to_state(self.q, self.v, W[0])
                 status, done, self.count, _ = kernels.affine_chunk(
@@ -639,24 +652,50 @@ class _Engine:
 
     def _apply_jump(self, s: int, size: float, time: float):
         """A support jumps by ``size``: dampers to it give the bodies an impulse,
-        Δv = −M⁻¹ C_s e_s · size; the change of energy is booked as support work."""
-        before = self._energy_now(time - 0.0)
-        impulse = -(self.m.C_s[:, [s]].toarray().ravel()) * size
+        Δv = −M⁻¹ C_s e_s · size; the change of energy is booked as support work.
+
+        Signals are right-continuous, so a sample at the jump time shows the state
+        just after it; contact changes the jump causes are events at that time.
+        """
         if self.m.M_s[:, [s]].nnz:
             raise RunError(
                 f"support {self.m.support_ids[s]!r} jumps at t = {time:g} s through an inerter, "
                 "which would need an infinite force; give it a bump or a table with a finite rise"
             )
+        before = self._energy_now(time)
+        impulse = -(self.m.C_s[:, [s]].toarray().ravel()) * size
         self.v = self.v + mass_solver(self.m)(impulse)
-        after = self._energy_now(time, shift=(s, size))
-        self.energy[1] += after - before
+        self.energy[1] += self._energy_now(time, shift=(s, size)) - before
         self.events.append(Event(time, self.m.support_ids[s], "support-jump"))
+        if len(self.watch_element):
+            u, *_ = self.inputs.at(np.array(time))
+            values = np.zeros_like(self.watch_prev)
+            kernels._contact_values(self.q, u, self.m.n, self.watch_element, self.watch_kind,
+                                    self.table.ea, self.table.eb, self.table.k, self.table.fs,
+                                    self.table.gap, values)  # fmt: skip
+            for w in np.flatnonzero((values > 0) != (self.watch_prev > 0)):
+                self.events.append(Event(time, self.m.element_ids[self.watch_element[w]],
+                                         self._event_kind(w, values[w])))  # fmt: skip
+            self.watch_prev[:] = values
+        if self.count and self._time(int(self.out_step[self.count - 1])) == time:
+            self.count -= 1
+            self._store_current(int(self.out_step[self.count]))
+
+    def _event_kind(self, w: int, value: float) -> str:
+        positive = value > 0
+        if self.watch_kind[w] == 0:
+            lifted = positive if self.watch_sign[w] > 0 else not positive
+            return "lift-off" if lifted else "landing"
+        return "stop-contact" if positive else "stop-release"
 
     def _energy_now(self, time: float, shift=None) -> float:
-        """Kinetic plus stored energy with supports at their positions just before
-        ``time`` (plus ``shift``), J."""
-        u, ud, udd, _ = self.inputs.at(np.array(time - 1e-12 * max(1.0, time)))
+        """Kinetic plus stored energy with the supports where they were just before
+        ``time`` (moved by ``shift`` = (support, size) when given), J."""
+        u, ud, udd, _ = self.inputs.at(np.array(time))
         u = np.array(u, dtype=float)
+        for t_jump, s, size in self.inputs.jumps(self.T):
+            if t_jump == time:
+                u[s] -= size  # back to the left limit
         if shift is not None:
             u[shift[0]] += shift[1]
         kinetic = 0.5 * float(self.v @ (self.m.M @ self.v))
@@ -749,13 +788,7 @@ class _Engine:
             t1 = self._time(step)
             t0 = (step - 1) * self.h
             time = t0 + float(self.ev_frac[j]) * (t1 - t0)
-            positive = self.ev_value[j] > 0
-            if self.watch_kind[w] == 0:
-                lifted = positive if self.watch_sign[w] > 0 else not positive
-                kind = "lift-off" if lifted else "landing"
-            else:
-                kind = "stop-contact" if positive else "stop-release"
-            out.append(Event(time, element, kind))
+            out.append(Event(time, element, self._event_kind(w, self.ev_value[j])))
         if self.n_ev > self.ev_capacity:
             out.append(Event(math.nan, "", f"{self.n_ev - self.ev_capacity} more events not kept"))
         return sorted(out, key=lambda e: (e.time, e.element))
