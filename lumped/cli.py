@@ -73,6 +73,22 @@ def _add_analysis_commands(commands) -> None:
     check.add_argument("--gamma", type=float, help="Newmark γ (newmark only)")
     check.add_argument("--json", action="store_true", help="the verdict as JSON on stdout")
 
+    from lumped.simulate import ADAPTIVE_METHODS
+
+    run = commands.add_parser("run", help="time simulation to CSV or Parquet (exit 3 if it diverged)")
+    run.add_argument("file", help="system file (TOML)")
+    run.add_argument("--stepper", choices=[*STEPPERS, *ADAPTIVE_METHODS], metavar="ID",
+                     help=f"stepper id (default: the file's [run]); also {', '.join(ADAPTIVE_METHODS)}")
+    run.add_argument("--dt", type=_quantity_arg("time"), help="time step, s or with units")
+    run.add_argument("--duration", type=_quantity_arg("time"), help="run length, s or with units")
+    run.add_argument("--output-rate", type=_quantity_arg("frequency"),
+                     help="samples per second, Hz (default: the file's, else every step)")
+    run.add_argument("--out", help="output file, .csv or .parquet (replaced atomically)")
+    run.add_argument("--convergence", action="store_true",
+                     help="also run at dt/2, dt/4, dt/8 and report the observed order")
+    run.add_argument("--quiet", action="store_true", help="no progress bar")
+    run.add_argument("--json", action="store_true", help="a summary of the run as JSON on stdout")
+
 
 def _quantity_arg(dimension: str):
     from lumped.units import QuantityError, parse_quantity
@@ -192,7 +208,79 @@ def cmd_check(args) -> int:
     return EXIT_OK if verdict.stable else EXIT_UNSTABLE
 
 
-_COMMANDS = {"show": cmd_show, "serve": cmd_serve, "modes": cmd_modes, "check": cmd_check}
+def cmd_run(args) -> int:
+    from lumped.output import write_result
+    from lumped.simulate import simulate
+
+    system = _load(args.file)
+    if not args.out and not args.convergence:
+        print("lumped run: give --out FILE.csv or FILE.parquet (or --convergence)", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    if args.out and Path(args.out).suffix.lower() not in (".csv", ".parquet"):
+        print(f"lumped run: --out must end in .csv or .parquet, got {args.out!r}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    bar = None if args.quiet or not sys.stderr.isatty() else _ProgressBar()
+    result = simulate(system, stepper=args.stepper, dt=args.dt, duration=args.duration,
+                      output_rate=args.output_rate, progress=bar)  # fmt: skip
+    if bar is not None:
+        bar.close()
+    if args.out:
+        write_result(result, args.out)
+    summary = {
+        "status": result.status,
+        "message": result.message,
+        "stepper": result.stepper,
+        "dt": result.dt,
+        "duration": result.duration,
+        "steps": result.steps,
+        "samples": len(result.time),
+        "events": [{"time": e.time, "element": e.element, "kind": e.kind} for e in result.events],
+        "energy_balance_error": float(abs(result.balance_error).max()),
+        "out": args.out,
+    }
+    if args.convergence:
+        from lumped.convergence import convergence_study
+
+        summary["convergence"] = convergence_study(system, result.stepper, result.dt, result.duration).to_json()
+    if args.json:
+        _print_json(summary)
+    elif not args.quiet:
+        print(format_run(summary))
+    if result.diverged:
+        print(f"lumped run: {result.message}", file=sys.stderr)
+        return EXIT_DIVERGED
+    return EXIT_OK
+
+
+class _ProgressBar:
+    """A one-line progress bar with time left, on stderr, redrawn at most 10 times a second."""
+
+    def __init__(self, width: int = 30):
+        import time
+
+        self.clock = time.monotonic
+        self.start = self.clock()
+        self.last = 0.0
+        self.width = width
+
+    def __call__(self, fraction: float) -> None:
+        now = self.clock()
+        if now - self.last < 0.1 and fraction < 1:
+            return
+        self.last = now
+        elapsed = now - self.start
+        left = elapsed * (1 - fraction) / fraction if fraction > 0 else math.inf
+        filled = int(self.width * fraction)
+        eta = f"{left:5.1f} s left" if math.isfinite(left) else "  ..."
+        sys.stderr.write(f"\r  [{'#' * filled}{'.' * (self.width - filled)}] {100 * fraction:5.1f} %  {eta}")
+        sys.stderr.flush()
+
+    def close(self) -> None:
+        sys.stderr.write("\r" + " " * (self.width + 30) + "\r")
+        sys.stderr.flush()
+
+
+_COMMANDS = {"show": cmd_show, "serve": cmd_serve, "modes": cmd_modes, "check": cmd_check, "run": cmd_run}
 
 
 # --------------------------------------------------------------------------- text output
@@ -333,6 +421,36 @@ def format_check(name: str, verdict) -> str:
     ]  # fmt: skip
     lines += ["", table(["mode", "frequency", "damping ratio", "max stable dt", "radius/step",
                          "growth over run", "numerical damping", "period error"], rows)]  # fmt: skip
+    return "\n".join(lines)
+
+
+def format_run(summary: dict) -> str:
+    lines = [
+        f"{summary['stepper']} at dt = {_seconds(summary['dt'])} over {summary['duration']:g} s: "
+        f"{summary['status']} ({summary['steps']:,} steps, {summary['samples']:,} samples)"
+    ]
+    if summary["message"]:
+        lines.append(f"  {summary['message']}")
+    lines.append(f"  energy balance error  {summary['energy_balance_error']:.3e} J (largest over the run)")
+    if summary["out"]:
+        lines.append(f"  written to            {summary['out']}")
+    events = summary["events"]
+    if events:
+        lines.append(f"  events                {len(events)}")
+        for e in events[:10]:
+            lines.append(f"    {e['time']:10.6f} s  {e['element']:<20} {e['kind']}")
+        if len(events) > 10:
+            lines.append(f"    … {len(events) - 10} more (all in --json)")
+    study = summary.get("convergence")
+    if study:
+        lines.append(f"  convergence ({study['method']})")
+        for h, e in zip(study["dt"], study["error"], strict=True):
+            lines.append(f"    dt = {_seconds(h):>12}  error {e:.3e}")
+        order = study["observed_order"]
+        lines.append(
+            f"    observed order {order:.2f} (declared {study['declared_order']})" if order is not None
+            else "    observed order: errors at round-off, no slope to fit"
+        )
     return "\n".join(lines)
 
 

@@ -26,9 +26,12 @@ METHODS = ["euler", "heun", "rk3", "rk4", "symplectic-euler", "central-differenc
 #: brute-force agreement: the limits come out far tighter, but a brute-force table
 #: only promises this much
 RTOL = 1e-3
-#: a spectral radius above 1 by more than this is growth, not rounding (the maps at
-#: ζ = 1 are defective, which costs about √ε in the computed radius)
-GROWTH = 1e-7
+#: a spectral radius above 1 by more than this is growth, not rounding; the maps at
+#: ζ = 1 are defective (a double root), which costs about √ε in the computed radius
+GROWTH = {"simple": 1e-12, "double root": 1e-7}
+#: Heun's growth per step on an undamped mode, Ω⁴/8, is below rounding for Ω under
+#: about 2e-3: a brute-force limit under this means "unstable at every step it resolves"
+RESOLUTION = 0.01
 
 
 # ---------------------------------------------------------------- the methods, from the books
@@ -107,8 +110,9 @@ def radius(method, h, zeta):
 
 def brute_force_limit(method, zeta, hi=6.0, points=60001):
     """First Ω where the radius exceeds 1: a scan with spacing 1e-4, then bisection."""
+    growth = GROWTH["double root" if zeta == 1.0 else "simple"]
     grid = np.linspace(1e-4, hi, points)
-    unstable = radius(method, grid, zeta) > 1 + GROWTH
+    unstable = radius(method, grid, zeta) > 1 + growth
     if not unstable.any():
         return np.inf
     k = int(np.argmax(unstable))
@@ -117,7 +121,7 @@ def brute_force_limit(method, zeta, hi=6.0, points=60001):
     lo, hi = grid[k - 1], grid[k]
     for _ in range(60):
         mid = 0.5 * (lo + hi)
-        if radius(method, mid, zeta) > 1 + GROWTH:
+        if radius(method, mid, zeta) > 1 + growth:
             hi = mid
         else:
             lo = mid
@@ -135,8 +139,8 @@ def test_library_matches_brute_force_table(method, table):
     got = critical_omega_h(STEPPERS[method], ZETAS)
     for zeta, value in zip(ZETAS, got, strict=True):
         expected = table[method][zeta]
-        if expected == 0.0:
-            # unstable at the smallest step of the scan: no positive step is stable
+        if expected < RESOLUTION and zeta == 0.0:
+            # unstable at every step the scan resolves: no positive step is stable
             assert value == 0.0, (method, zeta)
         else:
             assert value == pytest.approx(expected, rel=RTOL), (method, zeta)
@@ -144,7 +148,7 @@ def test_library_matches_brute_force_table(method, table):
 
 def test_table_shape_known_features(table):
     # features of the table that the books state outright (REFERENCES, Steppers)
-    assert table["euler"][0.0] == 0.0 and table["heun"][0.0] == 0.0
+    assert table["euler"][0.0] < RESOLUTION and table["heun"][0.0] < RESOLUTION
     assert table["euler"][0.3] == pytest.approx(0.6, rel=RTOL)  # exactly 2ζ
     assert table["rk4"][0.0] == pytest.approx(2 * np.sqrt(2), rel=RTOL)
     assert table["rk3"][0.0] == pytest.approx(np.sqrt(3), rel=RTOL)
@@ -161,26 +165,33 @@ def test_undamped_euler_and_heun_grow_at_every_scanned_step():
     assert np.all(radius("heun", grid, 0.0) > 1)
 
 
-def _norm_growth(method, h, zeta, steps):
-    """Largest state norm over the last quarter of a run over the first quarter's,
-    stepping (1, 1) ``steps`` times."""
+def _log_norm_growth(method, h, zeta, steps):
+    """log of (largest state norm over the last quarter of a run / over the first
+    quarter), stepping (1, 1) ``steps`` times; the state is renormalised every step
+    and the logs of the norms summed, so that fast growth does not overflow."""
     a = np.ones_like(h)
     b = np.ones_like(h)
-    norms = np.empty((steps,) + h.shape)
+    log_norm = np.empty((steps,) + h.shape)
+    total = np.zeros_like(h)
     for n in range(steps):
         a, b = STEP[method](a, b, h, zeta)
-        norms[n] = np.hypot(a, b)
+        norm = np.hypot(a, b)
+        total = total + np.log(norm)
+        a, b = a / norm, b / norm
+        log_norm[n] = total
     q = steps // 4
-    return norms[-q:].max(axis=0) / norms[:q].max(axis=0)
+    return log_norm[-q:].max(axis=0) - log_norm[:q].max(axis=0)
 
 
 @pytest.mark.parametrize("method", METHODS)
 def test_long_runs_confirm_the_limit(method, table):
     # the per-step growth near the limit is tiny (REFERENCES, the trap): run long enough
-    # to tell, here 40 000 steps at 0.95 and 1.05 times each limit
-    zetas = [z for z in ZETAS if table[method][z] > 0]
+    # to tell, here 40 000 steps at 0.95 and 1.05 times each limit, all ζ at once
+    zetas = np.array([z for z in ZETAS if table[method][z] >= RESOLUTION])
     limits = np.array([table[method][z] for z in zetas])
-    for zeta, limit in zip(zetas, limits, strict=True):
-        below, above = _norm_growth(method, np.array([0.95 * limit, 1.05 * limit]), zeta, 40_000)
-        assert below <= 1.0 + 1e-6, (method, zeta, below)
-        assert above > 1.5, (method, zeta, above)
+    h = np.concatenate([0.95 * limits, 1.05 * limits])
+    growth = _log_norm_growth(method, h, np.concatenate([zetas, zetas]), 40_000)
+    below, above = growth[: len(zetas)], growth[len(zetas) :]
+    assert np.all(below <= 1e-6), dict(zip(zetas, below, strict=True))
+    # at 1.05 × its limit explicit Euler at ζ = 0.01 grows by only 2e-5 per step
+    assert np.all(above > 0.05), dict(zip(zetas, above, strict=True))
