@@ -143,16 +143,19 @@ def assemble(system: System | nx.MultiGraph) -> Matrices:
     support_pos = {n: i for i, n in enumerate(support_ids)}
     mass = np.array([graph.nodes[n]["mass"] for n in body_ids], dtype=float)
 
-    edges = list(graph.edges(keys=True, data=True))
+    edges = _edge_list(graph)
     edges.sort(key=lambda e: e[3].get("order", len(edges)))  # file order; stable otherwise
     n_e, n_b, n_s = len(edges), len(body_ids), len(support_ids)
+    data = [d for *_, d in edges]
     element_ids = tuple(key for _, _, key, _ in edges)
-    element_kinds = tuple(data["kind"] for _, _, _, data in edges)
-    ends = [data.get("between", (u, v)) for u, v, _, data in edges]
-    stiffness = np.array([d.get("stiffness", 0.0) for *_, d in edges], dtype=float)
-    damping = np.array([d.get("coefficient", 0.0) for *_, d in edges], dtype=float)
-    inertance = np.array([d.get("inertance", 0.0) for *_, d in edges], dtype=float)
-    preload = np.array([d.get("preload", 0.0) for *_, d in edges], dtype=float)
+    element_kinds = tuple(d["kind"] for d in data)
+    ends = [d.get("between", (u, v)) for u, v, _, d in edges]
+
+    def column(name: str) -> np.ndarray:
+        return np.fromiter((d.get(name, 0.0) for d in data), dtype=float, count=n_e)
+
+    stiffness, damping = column("stiffness"), column("coefficient")
+    inertance, preload = column("inertance"), column("preload")
 
     D = _incidence(ends, body_pos, n_e, n_b)
     D_s = _incidence(ends, support_pos, n_e, n_s)
@@ -189,21 +192,34 @@ def assemble(system: System | nx.MultiGraph) -> Matrices:
     )
 
 
+def _edge_list(graph: nx.MultiGraph) -> list[tuple]:
+    """``(u, v, key, data)`` of every edge once, in adjacency order: the same as
+    ``graph.edges(keys=True, data=True)``, read straight from the adjacency dicts,
+    which is about twice as fast on large graphs."""
+    edges, seen = [], set()
+    for u, neighbours in graph._adj.items():
+        for v, keyed in neighbours.items():
+            if v not in seen:
+                edges.extend((u, v, key, data) for key, data in keyed.items())
+        seen.add(u)
+    return edges
+
+
 def _incidence(ends, position: dict, n_rows: int, n_cols: int) -> sp.csr_matrix:
     """Signed incidence of element ends on the nodes in ``position``: −1 at the lower
     end ``a``, +1 at the upper end ``b`` (δ = x_b − x_a)."""
-    rows, cols, signs = [], [], []
-    for row, (a, b) in enumerate(ends):
-        for node, sign in ((a, -1.0), (b, 1.0)):
-            col = position.get(node)
-            if col is not None:
-                rows.append(row)
-                cols.append(col)
-                signs.append(sign)
+    lower = np.fromiter((position.get(a, -1) for a, _ in ends), dtype=np.int64, count=n_rows)
+    upper = np.fromiter((position.get(b, -1) for _, b in ends), dtype=np.int64, count=n_rows)
+    rows = np.arange(n_rows, dtype=np.int64)
+    keep_lower, keep_upper = lower >= 0, upper >= 0
     return sp.csr_matrix(
-        (np.array(signs), (np.array(rows, dtype=np.int64), np.array(cols, dtype=np.int64))),
+        (
+            np.concatenate([np.full(keep_lower.sum(), -1.0), np.full(keep_upper.sum(), 1.0)]),
+            (np.concatenate([rows[keep_lower], rows[keep_upper]]),
+             np.concatenate([lower[keep_lower], upper[keep_upper]])),
+        ),
         shape=(n_rows, n_cols),
-    )
+    )  # fmt: skip
 
 
 def _force_map(system, body_pos: dict) -> tuple[tuple[str, ...], sp.csr_matrix]:

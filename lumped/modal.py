@@ -176,12 +176,23 @@ def is_classically_damped(matrices: Matrices) -> bool:
 
 
 def _modal_eigenvalues(omega: np.ndarray, zeta: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Eigenvalues (Im ≥ 0 representatives) of decoupled modes, with their mode index."""
+    """Eigenvalues (Im ≥ 0 representatives) of decoupled modes, with their mode index.
+
+    For a rigid-body mode (ω = 0) ``zeta`` holds half its modal damping c (1/s): its
+    eigenvalues are 0 and −c. Without damping (c at round-off against the largest ω)
+    the double eigenvalue 0 is one rigid-body mode, as it is from the state matrix.
+    """
     values, index = [], []
+    top = float(np.max(omega)) if len(omega) else 0.0
     for j, (w, z) in enumerate(zip(omega, zeta, strict=True)):
         if w == 0.0:
-            values += [0.0 + 0.0j, -2.0 * z + 0.0j] if z > 0 else [0.0 + 0.0j, 0.0 + 0.0j]
-            index += [j, j]
+            decay = 2.0 * z
+            if decay > RIGID_TOLERANCE * top:
+                values += [0.0 + 0.0j, -decay + 0.0j]
+                index += [j, j]
+            else:
+                values.append(0.0 + 0.0j)
+                index.append(j)
         elif z < 1.0:
             values.append(complex(-z * w, w * math.sqrt(1.0 - z * z)))
             index.append(j)

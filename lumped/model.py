@@ -508,7 +508,8 @@ def _check_damper(d: Damper) -> list[Problem]:
         f = [p[1] for p in d.curve]
         if any(b <= a for a, b in zip(v, v[1:], strict=False)):
             out.append(Problem(where, "curve", "velocities must increase strictly from point to point"))
-        elif any(b < a for a, b in zip(f, f[1:], strict=False)):
+            return out  # the checks below read the curve in velocity order
+        if any(b < a for a, b in zip(f, f[1:], strict=False)):
             out.append(Problem(where, "curve", "is not monotone: force must not fall as velocity rises"))
         if not v[0] <= 0 <= v[-1]:
             out.append(Problem(where, "curve", "must span zero velocity (a point at or below 0 and at or above 0)"))

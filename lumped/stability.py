@@ -14,15 +14,21 @@ mode).
 
 Systems of up to :data:`~lumped.assemble.DENSE_LIMIT` bodies use their exact
 eigenvalues; larger ones use the bound on the stiffest mode (:func:`lumped.modal.stiffest_mode`),
-which errs on the safe side, and the report says so.
+which errs on the safe side, and the report says so. Since only |λ| is bounded there,
+not the damping of each mode, the bound is taken at the damping ratio in [0, 1] at
+which the stepper is least stable (:func:`least_stable_damping`): the limit then holds
+for every mode whatever its damping, and a stepper that is unstable on undamped modes
+(explicit Euler, Heun) gets no guaranteed step on a large system.
 """
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass, field
 
 import numpy as np
+from scipy.optimize import minimize_scalar
 
 from lumped.assemble import DENSE_LIMIT, Matrices
 from lumped.errors import LumpedError
@@ -33,6 +39,7 @@ __all__ = [
     "ModeCheck",
     "StepCheck",
     "critical_omega_h",
+    "least_stable_damping",
     "max_stable_step",
     "check_step",
     "STABILITY_SAFETY",
@@ -51,6 +58,9 @@ SCAN_POINTS_PER_DECADE = 40
 EXCESS_TOLERANCE = {"first-order": 1e-14, "second-order": 1e-12}
 #: Bisection steps on the bracketing Ω interval (each halves it).
 BISECTION_STEPS = 64
+#: Damping ratios in [0, 1] scanned for the one with the smallest Ω_crit, before a
+#: bounded refinement around the smallest.
+LEAST_STABLE_POINTS = 201
 
 
 class StepError(LumpedError):
@@ -87,6 +97,31 @@ def critical_omega_h(stepper: Stepper, zeta) -> np.ndarray:
             lo = np.where(bad, lo, mid)
         result[bracket] = lo
     return result[inverse]
+
+
+@functools.lru_cache(maxsize=128)
+def least_stable_damping(stepper: Stepper) -> tuple[float, float]:
+    """The damping ratio ζ* in [0, 1] at which ``stepper``'s limit Ω_crit(ζ) is smallest,
+    and that smallest Ω_crit.
+
+    Every mode has a damping ratio in [0, 1] (a real eigenvalue counts as ζ = 1), so
+    Ω_crit(ζ*)/h is a bound on |λ| below which every mode is stable, whatever its
+    damping. 0 for steppers unstable on an undamped mode, ``inf`` for unconditionally
+    stable ones.
+    """
+    grid = np.linspace(0.0, 1.0, LEAST_STABLE_POINTS)
+    limits = critical_omega_h(stepper, grid)
+    k = int(np.argmin(limits))
+    zeta, smallest = float(grid[k]), float(limits[k])
+    if 0 < smallest < math.inf:
+        bounds = (float(grid[max(k - 1, 0)]), float(grid[min(k + 1, len(grid) - 1)]))
+        refined = minimize_scalar(
+            lambda z: float(critical_omega_h(stepper, z)[0]), bounds=bounds, method="bounded",
+            options={"xatol": 1e-10},
+        )  # fmt: skip
+        if refined.fun < smallest:
+            zeta, smallest = float(refined.x), float(refined.fun)
+    return zeta, smallest
 
 
 def max_stable_step(stepper: Stepper, eigenvalues) -> np.ndarray:
@@ -159,7 +194,7 @@ class StepCheck:
                 }
             ),
             "growth_over_run": _json_number(self.growth_over_run),
-            "recommended_dt": self.recommended_dt,
+            "recommended_dt": _json_number(self.recommended_dt),
             "recommendation_rule": self.recommendation_rule,
             "source": self.source,
             "modes": [m.to_json() for m in self.modes],
@@ -199,20 +234,26 @@ def check_step(
     if matrices.n == 0:
         raise StepError("the system has no bodies")
     notes = []
-    if matrices.n <= DENSE_LIMIT:
+    bound_only = matrices.n > DENSE_LIMIT
+    if not bound_only:
         eig = damped_eigenvalues(matrices)
         source = "exact eigenvalues"
     else:
         top = stiffest_mode(matrices)
-        # The bound on |λ| with the estimated damping ratio, and half and twice that
-        # ratio, so that a limit that varies with ζ errs on the safe side.
-        zetas = np.unique(np.clip([top.damping_ratio, 0.5 * top.damping_ratio, 2 * top.damping_ratio], 0, 1))
+        # Every mode has |λ| ≤ the bound, but its damping ratio is unknown: the bound at
+        # the ratio where the stepper is least stable gives a limit safe for all modes.
+        # The estimate's own ratio, halved and doubled, is kept for the report.
+        worst, _ = least_stable_damping(stepper)
+        zetas = np.unique(
+            np.clip([worst, top.damping_ratio, 0.5 * top.damping_ratio, 2 * top.damping_ratio], 0, 1)
+        )
         eig = top.bound * (-zetas + 1j * np.sqrt(1 - zetas**2))
         source = "bound on the stiffest mode"
         notes.append(
             f"{matrices.n} bodies: limits use a guaranteed upper bound on the stiffest mode "
-            f"({top.bound / (2 * math.pi):.6g} Hz; estimate {top.estimate / (2 * math.pi):.6g} Hz), "
-            f"with its damping ratio {top.damping_ratio:.3g} halved and doubled, so they err on the safe side"
+            f"({top.bound / (2 * math.pi):.6g} Hz; estimate {top.estimate / (2 * math.pi):.6g} Hz) "
+            f"at the damping ratio where {stepper.id} is least stable ({worst:.3g}), and at the "
+            f"estimate's ratio {top.damping_ratio:.3g} halved and doubled, so they err on the safe side"
         )
     omega = np.abs(eig)
     rigid = omega == 0
@@ -248,12 +289,23 @@ def check_step(
     else:
         limiting, system_limit = None, math.inf
     stable = not bool(unstable_now.any())
-    recommended, rule = _recommend(system_limit, omega[finite], up_to_hz, matrices.n > DENSE_LIMIT)
-    if system_limit == 0.0:
+    recommended, rule = _recommend(system_limit, omega[finite], up_to_hz, bound_only)
+    if system_limit == 0.0 and bound_only:
+        notes.append(
+            f"no positive step can be guaranteed stable with {stepper.id}: only a bound on the "
+            f"stiffest mode is known, not every mode's damping, and {stepper.id} amplifies "
+            f"an undamped mode at any step"
+        )
+    elif system_limit == 0.0:
         notes.append(
             f"no positive step is stable with {stepper.id}: it amplifies the undamped "
             f"{omega[limiting] / (2 * math.pi):.6g} Hz mode at any step"
         )
+    run_growth = float(np.max(growth)) if len(growth) else 1.0
+    if bound_only:
+        # Only the stiffest mode is known; a large system's slow, lightly damped modes
+        # may barely decay over the run, so no factor below 1 is claimed.
+        run_growth = max(run_growth, 1.0)
     return StepCheck(
         stepper=stepper.id,
         dt=float(dt),
@@ -262,7 +314,7 @@ def check_step(
         stable=stable,
         max_stable_dt=None if system_limit == 0.0 else system_limit,
         limiting_mode=limiting,
-        growth_over_run=float(np.max(growth)) if len(growth) else 1.0,
+        growth_over_run=run_growth,
         recommended_dt=recommended,
         recommendation_rule=rule,
         source=source,
