@@ -31,7 +31,7 @@ SPRING, DAMPER, ASYMMETRIC_DAMPER, CURVE_DAMPER, INERTER = 0, 1, 2, 3, 4
 OK, DIVERGED = 0, 1
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, inline="always", error_model="numpy")
 def _spring_force(d, k, fs, acts, gap, gk):
     """Dynamic force (total − static) of a spring at deflection d from static."""
     f = k * d
@@ -49,7 +49,7 @@ def _spring_force(d, k, fs, acts, gap, gk):
     return f
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, inline="always", error_model="numpy")
 def _curve_force(dv, lo, hi, cv, cf):
     """Piecewise-linear damper curve through points lo … hi−1, extrapolated linearly."""
     if dv <= cv[lo]:
@@ -64,60 +64,86 @@ def _curve_force(dv, lo, hi, cv, cf):
     return cf[j] + slope * (dv - cv[j])
 
 
-@njit(cache=True)
-def body_accelerations(
-    q, v, u, ud, udd, F,
-    ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
-    minv, Minv, dense_mass, fbody, fscale,
-    acc, rates,
-):  # fmt: skip
+@njit(cache=True, inline="always", error_model="numpy")
+def _node(x, u, n, i):
+    return x[i] if i < n else u[i - n]
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def body_accelerations(q, v, u, ud, udd, F, model, acc, rates):
     """Fill ``acc`` (n) with body accelerations and ``rates`` (3) with the power
     dissipated, delivered by supports and delivered by forces (W).
 
-    ``k``: stiffness of springs, inertance of inerters; ``c``: damping coefficient
-    (rebound coefficient for asymmetric dampers), ``c2``: compression coefficient;
-    ``coff[e]``: first curve point of a tabulated damper e (its points run to
-    ``coff[e+1]`` of the next curve, see ``cf``/``cv``).
+    ``model`` is the tuple built by the driver: ``(links, nonlinear, inerters,
+    table, minv, Minv, dense_mass, fbody, fscale)``. ``links = (a, b, k, c)`` are the
+    linear springs and dampers merged per node pair — the tight loop that carries a
+    large chain; ``nonlinear`` and ``inerters`` index the element ``table`` (see
+    :func:`element_state`), evaluated one by one.
     """
+    links, nonlinear, inerters, table, minv, Minv, dense_mass, fbody, fscale = model
+    la, lb, lk, lc = links
+    ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf = table
     n = q.shape[0]
-    force = np.zeros(n)
+    force = acc  # accumulate the nodal forces in place, then scale by the mass
+    for i in range(n):
+        force[i] = 0.0
     dissipated = 0.0
     supports = 0.0
-    has_inerters = False
-    for e in range(ea.shape[0]):
+    for e in range(la.shape[0]):
+        a = la[e]
+        b = lb[e]
+        if a < n and b < n:
+            d = q[b] - q[a]
+            dv = v[b] - v[a]
+            f = lk[e] * d + lc[e] * dv
+            dissipated += lc[e] * dv * dv
+            force[a] += f
+            force[b] -= f
+        else:
+            sa = ud[a - n] if a >= n else 0.0
+            sb = ud[b - n] if b >= n else 0.0
+            d = _node(q, u, n, b) - _node(q, u, n, a)
+            dv = _node(v, ud, n, b) - _node(v, ud, n, a)
+            f = lk[e] * d + lc[e] * dv
+            dissipated += lc[e] * dv * dv
+            supports += f * (sb - sa)
+            if a < n:
+                force[a] += f
+            if b < n:
+                force[b] -= f
+    for j in range(nonlinear.shape[0]):
+        e = nonlinear[j]
         a = ea[e]
         b = eb[e]
-        if a < n:
-            xa, va, sa = q[a], v[a], 0.0
-        else:
-            xa, va, sa = u[a - n], ud[a - n], ud[a - n]
-        if b < n:
-            xb, vb, sb = q[b], v[b], 0.0
-        else:
-            xb, vb, sb = u[b - n], ud[b - n], ud[b - n]
-        d = xb - xa
-        dv = vb - va
+        d = _node(q, u, n, b) - _node(q, u, n, a)
+        dv = _node(v, ud, n, b) - _node(v, ud, n, a)
         kd = kind[e]
         if kd == SPRING:
             f = _spring_force(d, k[e], fs[e], acts[e], gap[e], gk[e])
-        elif kd == DAMPER:
-            f = c[e] * dv
-            dissipated += f * dv
         elif kd == ASYMMETRIC_DAMPER:
             f = c[e] * dv if dv > 0.0 else c2[e] * dv
             dissipated += f * dv
-        elif kd == CURVE_DAMPER:
+        else:
             f = _curve_force(dv, coff[e], coff[e + 1], cv, cf)
             dissipated += f * dv
-        else:  # inerter: only its support-side part is known here (see the mass matrix)
-            f = 0.0
-            if a >= n:
-                f -= k[e] * udd[a - n]
-            if b >= n:
-                f += k[e] * udd[b - n]
-            has_inerters = True
-        if kd != INERTER:
-            supports += f * (sb - sa)
+        sa = ud[a - n] if a >= n else 0.0
+        sb = ud[b - n] if b >= n else 0.0
+        supports += f * (sb - sa)
+        if a < n:
+            force[a] += f
+        if b < n:
+            force[b] -= f
+    for j in range(inerters.shape[0]):
+        # Only the support-side part of an inerter's force is known here; its
+        # body-side inertia is in the mass matrix.
+        e = inerters[j]
+        a = ea[e]
+        b = eb[e]
+        f = 0.0
+        if a >= n:
+            f -= k[e] * udd[a - n]
+        if b >= n:
+            f += k[e] * udd[b - n]
         if a < n:
             force[a] += f
         if b < n:
@@ -128,30 +154,29 @@ def body_accelerations(
         force[fbody[j]] += load
         work += load * v[fbody[j]]
     if dense_mass:
+        scratch = force.copy()
         for i in range(n):
             s = 0.0
             for j in range(n):
-                s += Minv[i, j] * force[j]
+                s += Minv[i, j] * scratch[j]
             acc[i] = s
     else:
         for i in range(n):
             acc[i] = minv[i] * force[i]
-    if has_inerters:  # an inerter's whole force b·δ'' works on the support it joins
-        for e in range(ea.shape[0]):
-            a = ea[e]
-            b = eb[e]
-            if kind[e] == INERTER and (a >= n or b >= n):
-                acc_a = acc[a] if a < n else udd[a - n]
-                acc_b = acc[b] if b < n else udd[b - n]
-                sa = ud[a - n] if a >= n else 0.0
-                sb = ud[b - n] if b >= n else 0.0
-                supports += k[e] * (acc_b - acc_a) * (sb - sa)
+    for j in range(inerters.shape[0]):  # an inerter's whole force b·δ'' works on its support
+        e = inerters[j]
+        a = ea[e]
+        b = eb[e]
+        if a >= n or b >= n:
+            sa = ud[a - n] if a >= n else 0.0
+            sb = ud[b - n] if b >= n else 0.0
+            supports += k[e] * (_node(acc, udd, n, b) - _node(acc, udd, n, a)) * (sb - sa)
     rates[0] = dissipated
     rates[1] = supports
     rates[2] = work
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def element_state(
     q, v, a, u, ud, udd,
     ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
@@ -191,7 +216,31 @@ def element_state(
             energy[e] = 0.5 * k[e] * dv * dv
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, error_model="numpy")
+def element_series(
+    q, v, a, u, ud, udd,
+    ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
+    deflection, force, stored, inerter_energy,
+):  # fmt: skip
+    """:func:`element_state` over samples (rows of q, v, a, u, ud, udd): fills
+    ``deflection`` and ``force`` (samples × elements), and per sample the springs'
+    stored energy and the inerters' kinetic energy (J)."""
+    energy = np.zeros(ea.shape[0])
+    for i in range(q.shape[0]):
+        element_state(q[i], v[i], a[i], u[i], ud[i], udd[i], ea, eb, kind, k, c, c2, fs, acts,
+                      gap, gk, coff, cv, cf, deflection[i], force[i], energy)  # fmt: skip
+        s_spring = 0.0
+        s_inerter = 0.0
+        for e in range(ea.shape[0]):
+            if kind[e] == SPRING:
+                s_spring += energy[e]
+            elif kind[e] == INERTER:
+                s_inerter += energy[e]
+        stored[i] = s_spring
+        inerter_energy[i] = s_inerter
+
+
+@njit(cache=True, inline="always", error_model="numpy")
 def _spring_energy(d, k, fs, acts, gap, gk):
     """∫₀^d (dynamic force) dδ for a spring: linear part, one-sided clip, end stop."""
     energy = 0.5 * k * d * d
@@ -209,10 +258,11 @@ def _spring_energy(d, k, fs, acts, gap, gk):
     return energy
 
 
-@njit(cache=True)
-def _contact_values(q, u, n, watch_element, watch_kind, ea, eb, k, fs, gap, out):
+@njit(cache=True, error_model="numpy")
+def _contact_values(q, u, n, watch_element, watch_kind, table, out):
     """For each watched element, a value whose sign change is an event: for one-sided
     springs fs + kδ (the force it would carry), for end stops |δ| − gap."""
+    ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf = table
     for w in range(watch_element.shape[0]):
         e = watch_element[w]
         i = ea[e]
@@ -226,12 +276,11 @@ def _contact_values(q, u, n, watch_element, watch_kind, ea, eb, k, fs, gap, out)
             out[w] = abs(d) - gap[e]
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def rk_chunk(
     A, B, stage_col, end_col, q, v, energy, h, k0, nsteps,
     U, Ud, Udd, FF,
-    ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
-    minv, Minv, dense_mass, fbody, fscale,
+    model,
     out_every, out_q, out_v, out_a, out_e, out_step, n_out,
     watch_element, watch_kind, watch_prev, ev_step, ev_frac, ev_watch, ev_value, n_ev,
     q_limit,
@@ -252,6 +301,10 @@ def rk_chunk(
     acc = np.zeros(n)
     rates = np.zeros(3)
     values = np.zeros(watch_element.shape[0])
+    ub = np.zeros(U.shape[2])
+    udb = np.zeros(U.shape[2])
+    uddb = np.zeros(U.shape[2])
+    fb = np.zeros(FF.shape[2])
     m = n_out
     ne = n_ev
     for j in range(nsteps):
@@ -265,12 +318,8 @@ def rk_chunk(
                         sv += h * A[i, l] * kv[l, r]
                 qs[r] = sq
                 vs[r] = sv
-            col = stage_col[i]
-            body_accelerations(
-                qs, vs, U[j, col], Ud[j, col], Udd[j, col], FF[j, col],
-                ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
-                minv, Minv, dense_mass, fbody, fscale, acc, rates,
-            )  # fmt: skip
+            _copy_inputs(U, Ud, Udd, FF, j, stage_col[i], ub, udb, uddb, fb)
+            body_accelerations(qs, vs, ub, udb, uddb, fb, model, acc, rates)
             for r in range(n):
                 kq[i, r] = vs[r]
                 kv[i, r] = acc[r]
@@ -296,22 +345,31 @@ def rk_chunk(
             energy[p] += h * de
         step = k0 + j + 1
         if watch_element.shape[0] > 0:
-            ne = _record_events(q, U[j, end_col], n, watch_element, watch_kind, ea, eb, k, fs, gap,
-                                watch_prev, values, step, ev_step, ev_frac, ev_watch, ev_value, ne)  # fmt: skip
+            ne = _record_events(q, U[j, end_col], n, watch_element, watch_kind, model[3], watch_prev,
+                                values, step, ev_step, ev_frac, ev_watch, ev_value, ne)  # fmt: skip
         if not (worst <= q_limit):
             return DIVERGED, j + 1, m, ne
         if step % out_every == 0 and m < out_q.shape[0]:
-            body_accelerations(
-                q, v, U[j, end_col], Ud[j, end_col], Udd[j, end_col], FF[j, end_col],
-                ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
-                minv, Minv, dense_mass, fbody, fscale, acc, rates,
-            )  # fmt: skip
+            body_accelerations(q, v, U[j, end_col], Ud[j, end_col], Udd[j, end_col],
+                               FF[j, end_col], model, acc, rates)  # fmt: skip
             _store(m, step, q, v, acc, energy, out_q, out_v, out_a, out_e, out_step)
             m += 1
     return OK, nsteps, m, ne
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, inline="always", error_model="numpy")
+def _copy_inputs(U, Ud, Udd, FF, j, col, ub, udb, uddb, fb):
+    """Copy step j's inputs at stage column ``col`` into flat buffers (cheaper than
+    slicing a view per stage)."""
+    for r in range(ub.shape[0]):
+        ub[r] = U[j, col, r]
+        udb[r] = Ud[j, col, r]
+        uddb[r] = Udd[j, col, r]
+    for r in range(fb.shape[0]):
+        fb[r] = FF[j, col, r]
+
+
+@njit(cache=True, inline="always", error_model="numpy")
 def _store(m, step, q, v, acc, energy, out_q, out_v, out_a, out_e, out_step):
     for r in range(q.shape[0]):
         out_q[m, r] = q[r]
@@ -322,10 +380,10 @@ def _store(m, step, q, v, acc, energy, out_q, out_v, out_a, out_e, out_step):
     out_step[m] = step
 
 
-@njit(cache=True)
-def _record_events(q, u, n, watch_element, watch_kind, ea, eb, k, fs, gap,
-                   watch_prev, values, step, ev_step, ev_frac, ev_watch, ev_value, ne):  # fmt: skip
-    _contact_values(q, u, n, watch_element, watch_kind, ea, eb, k, fs, gap, values)
+@njit(cache=True, inline="always", error_model="numpy")
+def _record_events(q, u, n, watch_element, watch_kind, table, watch_prev, values, step,
+                   ev_step, ev_frac, ev_watch, ev_value, ne):  # fmt: skip
+    _contact_values(q, u, n, watch_element, watch_kind, table, values)
     for w in range(values.shape[0]):
         old = watch_prev[w]
         new = values[w]
@@ -340,12 +398,11 @@ def _record_events(q, u, n, watch_element, watch_kind, ea, eb, k, fs, gap,
     return ne
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def symplectic_chunk(
     q, v, energy, h, k0, nsteps,
     U, Ud, Udd, FF,
-    ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
-    minv, Minv, dense_mass, fbody, fscale,
+    model,
     out_every, out_q, out_v, out_a, out_e, out_step, n_out,
     watch_element, watch_kind, watch_prev, ev_step, ev_frac, ev_watch, ev_value, n_ev,
     q_limit,
@@ -360,11 +417,7 @@ def symplectic_chunk(
     m = n_out
     ne = n_ev
     for j in range(nsteps):
-        body_accelerations(
-            q, v, U[j, 0], Ud[j, 0], Udd[j, 0], FF[j, 0],
-            ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
-            minv, Minv, dense_mass, fbody, fscale, acc, rates,
-        )  # fmt: skip
+        body_accelerations(q, v, U[j, 0], Ud[j, 0], Udd[j, 0], FF[j, 0], model, acc, rates)
         worst = 0.0
         for r in range(n):
             v[r] += h * acc[r]
@@ -376,27 +429,21 @@ def symplectic_chunk(
             energy[p] += h * rates[p]
         step = k0 + j + 1
         if watch_element.shape[0] > 0:
-            ne = _record_events(q, U[j, 1], n, watch_element, watch_kind, ea, eb, k, fs, gap,
-                                watch_prev, values, step, ev_step, ev_frac, ev_watch, ev_value, ne)  # fmt: skip
+            ne = _record_events(q, U[j, 1], n, watch_element, watch_kind, model[3], watch_prev,
+                                values, step, ev_step, ev_frac, ev_watch, ev_value, ne)  # fmt: skip
         if not (worst <= q_limit):
             return DIVERGED, j + 1, m, ne
         if step % out_every == 0 and m < out_q.shape[0]:
-            body_accelerations(
-                q, v, U[j, 1], Ud[j, 1], Udd[j, 1], FF[j, 1],
-                ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
-                minv, Minv, dense_mass, fbody, fscale, acc, rates,
-            )  # fmt: skip
+            body_accelerations(q, v, U[j, 1], Ud[j, 1], Udd[j, 1], FF[j, 1], model, acc, rates)
             _store(m, step, q, v, acc, energy, out_q, out_v, out_a, out_e, out_step)
             m += 1
     return OK, nsteps, m, ne
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def affine_chunk(
     G, H0, H1, z, energy, h, k0, nsteps, W, ns, nf,
-    Qmap, Vmap, VWmap,
-    ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
-    minv, Minv, dense_mass, fbody, fscale,
+    Qmap, Vmap, VWmap, model,
     out_every, out_q, out_v, out_a, out_e, out_step, n_out, q_limit,
 ):  # fmt: skip
     """Linear steppers as one affine map per step, z₁ = G z + H0 w₀ + H1 w₁, where
@@ -413,8 +460,7 @@ def affine_chunk(
     rates = np.zeros(3)
     old = np.zeros(3)
     _affine_body_state(z, W[0], Qmap, Vmap, VWmap, q, v)
-    _rates_at(q, v, W[0], ns, nf, ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
-              minv, Minv, dense_mass, fbody, fscale, acc, old)  # fmt: skip
+    _rates_at(q, v, W[0], ns, nf, model, acc, old)
     m = n_out
     for j in range(nsteps):
         w0 = W[j]
@@ -429,8 +475,7 @@ def affine_chunk(
         for r in range(nz):
             z[r] = znew[r]
         _affine_body_state(z, w1, Qmap, Vmap, VWmap, q, v)
-        _rates_at(q, v, w1, ns, nf, ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
-                  minv, Minv, dense_mass, fbody, fscale, acc, rates)  # fmt: skip
+        _rates_at(q, v, w1, ns, nf, model, acc, rates)
         worst = 0.0
         for r in range(n):
             x = abs(q[r])
@@ -448,7 +493,7 @@ def affine_chunk(
     return OK, nsteps, m, 0
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, inline="always", error_model="numpy")
 def _affine_body_state(z, w, Qmap, Vmap, VWmap, q, v):
     for r in range(Qmap.shape[0]):
         sq = 0.0
@@ -462,11 +507,7 @@ def _affine_body_state(z, w, Qmap, Vmap, VWmap, q, v):
         v[r] = sv
 
 
-@njit(cache=True, inline="always")
-def _rates_at(q, v, w, ns, nf, ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
-              minv, Minv, dense_mass, fbody, fscale, acc, rates):  # fmt: skip
-    body_accelerations(
-        q, v, w[:ns], w[ns:2 * ns], w[2 * ns:3 * ns], w[3 * ns:3 * ns + nf],
-        ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
-        minv, Minv, dense_mass, fbody, fscale, acc, rates,
-    )  # fmt: skip
+@njit(cache=True, inline="always", error_model="numpy")
+def _rates_at(q, v, w, ns, nf, model, acc, rates):
+    body_accelerations(q, v, w[:ns], w[ns:2 * ns], w[2 * ns:3 * ns], w[3 * ns:3 * ns + nf],
+                       model, acc, rates)  # fmt: skip

@@ -175,6 +175,30 @@ class _Elements:
         return (self.ea, self.eb, self.kind, self.k, self.c, self.c2, self.fs, self.acts,
                 self.gap, self.gk, self.coff, self.cv, self.cf)  # fmt: skip
 
+    def links(self):
+        """Linear springs and dampers merged per (lower, upper) node pair: (a, b, k, c)."""
+        spring = (self.kind == kernels.SPRING) & (self.acts == 0) & ~np.isfinite(self.gap)
+        damper = self.kind == kernels.DAMPER
+        linear = spring | damper
+        pairs = np.stack([self.ea[linear], self.eb[linear]], axis=1)
+        if not len(pairs):
+            empty = np.zeros(0, dtype=np.int64)
+            return empty, empty, np.zeros(0), np.zeros(0)
+        unique, inverse = np.unique(pairs, axis=0, return_inverse=True)
+        inverse = inverse.ravel()
+        k = np.bincount(inverse, weights=np.where(spring[linear], self.k[linear], 0.0), minlength=len(unique))
+        c = np.bincount(inverse, weights=np.where(damper[linear], self.c[linear], 0.0), minlength=len(unique))
+        return unique[:, 0].copy(), unique[:, 1].copy(), k, c
+
+    def nonlinear(self):
+        """Indices of the elements evaluated one by one: nonlinear springs and dampers."""
+        spring = (self.kind == kernels.SPRING) & ((self.acts != 0) | np.isfinite(self.gap))
+        damper = (self.kind == kernels.ASYMMETRIC_DAMPER) | (self.kind == kernels.CURVE_DAMPER)
+        return np.flatnonzero(spring | damper).astype(np.int64)
+
+    def inerters(self):
+        return np.flatnonzero(self.kind == kernels.INERTER).astype(np.int64)
+
 
 def _element_table(matrices: Matrices, static: StaticState) -> _Elements:
     m = matrices
@@ -398,6 +422,9 @@ class _Engine:
         self.minv, self.Minv, self.dense_mass = _mass_arguments(matrices)
         self.fbody = np.array([matrices.body_ids.index(system.forces[f].on) for f in matrices.force_ids], dtype=np.int64)
         self.fscale = self.inputs.scales.astype(float)
+        self.model = (self.table.links(), self.table.nonlinear(), self.table.inerters(),
+                      self.table.args(), self.minv, self.Minv, self.dense_mass, self.fbody,
+                      self.fscale)  # fmt: skip
         n = matrices.n
         self.q = np.array([system.bodies[b].initial_displacement for b in matrices.body_ids], dtype=float)
         self.v = np.array([system.bodies[b].initial_velocity for b in matrices.body_ids], dtype=float)
@@ -437,8 +464,7 @@ class _Engine:
         if len(elements):
             u, *_ = self.inputs.at(np.array(0.0))
             kernels._contact_values(self.q, u, self.m.n, self.watch_element, self.watch_kind,
-                                    self.table.ea, self.table.eb, self.table.k, self.table.fs,
-                                    self.table.gap, self.watch_prev)  # fmt: skip
+                                    self.table.args(), self.watch_prev)  # fmt: skip
 
     def _store_initial(self):
         u, ud, udd, F = self.inputs.at(np.array(0.0))
@@ -449,8 +475,7 @@ class _Engine:
         self.count += 1
 
     def _accelerations(self, q, v, u, ud, udd, F, acc, rates):
-        kernels.body_accelerations(q, v, u, ud, udd, F, *self.table.args(), self.minv, self.Minv,
-                                   self.dense_mass, self.fbody, self.fscale, acc, rates)  # fmt: skip
+        kernels.body_accelerations(q, v, u, ud, udd, F, self.model, acc, rates)
 
     # -- the loop
 
@@ -543,8 +568,7 @@ class _Engine:
                 U, Ud, Udd, F = self._stage_inputs(start, n, offsets, np.full(n, step_h), ) if h is None else self._inputs_from(offsets, step_h)
                 status, done, self.count, self.n_ev = kernels.rk_chunk(
                     a, b, stage_col, end_col, self.q, self.v, self.energy, step_h, start, n,
-                    U, Ud, Udd, F, *self.table.args(), self.minv, self.Minv, self.dense_mass,
-                    self.fbody, self.fscale, self.every, self.out_q, self.out_v, self.out_a,
+                    U, Ud, Udd, F, self.model, self.every, self.out_q, self.out_v, self.out_a,
                     self.out_e, self.out_step, self.count, self.watch_element, self.watch_kind,
                     self.watch_prev, self.ev_step, self.ev_frac, self.ev_watch, self.ev_value,
                     self.n_ev, self.q_limit,
@@ -570,8 +594,7 @@ class _Engine:
                 U, Ud, Udd, F = self._stage_inputs(start, n, offsets, np.full(n, step_h)) if h is None else self._inputs_from(offsets, step_h)
                 status, done, self.count, self.n_ev = kernels.symplectic_chunk(
                     self.q, self.v, self.energy, step_h, start, n, U, Ud, Udd, F,
-                    *self.table.args(), self.minv, self.Minv, self.dense_mass, self.fbody,
-                    self.fscale, self.every, self.out_q, self.out_v, self.out_a, self.out_e,
+                    self.model, self.every, self.out_q, self.out_v, self.out_a, self.out_e,
                     self.out_step, self.count, self.watch_element, self.watch_kind,
                     self.watch_prev, self.ev_step, self.ev_frac, self.ev_watch, self.ev_value,
                     self.n_ev, self.q_limit,
@@ -621,8 +644,7 @@ class _Engine:
                 z = to_state(self.q, self.v, W[0])
                 status, done, self.count, _ = kernels.affine_chunk(
                     G, H0, H1, z, self.energy, step_h, start, n, W, ns, nf, Qmap, Vmap, VWmap,
-                    *self.table.args(), self.minv, self.Minv, self.dense_mass, self.fbody,
-                    self.fscale, self.every, self.out_q, self.out_v, self.out_a, self.out_e,
+                    self.model, self.every, self.out_q, self.out_v, self.out_a, self.out_e,
                     self.out_step, self.count, self.q_limit,
                 )  # fmt: skip
                 last = min(done, n)
@@ -671,8 +693,7 @@ class _Engine:
             u, *_ = self.inputs.at(np.array(time))
             values = np.zeros_like(self.watch_prev)
             kernels._contact_values(self.q, u, self.m.n, self.watch_element, self.watch_kind,
-                                    self.table.ea, self.table.eb, self.table.k, self.table.fs,
-                                    self.table.gap, values)  # fmt: skip
+                                    self.table.args(), values)  # fmt: skip
             for w in np.flatnonzero((values > 0) != (self.watch_prev > 0)):
                 self.events.append(Event(time, self.m.element_ids[self.watch_element[w]],
                                          self._event_kind(w, values[w])))  # fmt: skip
@@ -737,15 +758,10 @@ class _Engine:
         deflection = np.zeros((count, ne))
         force = np.zeros((count, ne))
         stored = np.zeros(count)
-        energy = np.zeros(ne)
-        springs = self.table.kind == kernels.SPRING
-        inerters = self.table.kind == kernels.INERTER
-        kinetic = 0.5 * np.einsum("ij,j,ij->i", v, self.m.mass, v)
-        for i in range(count):
-            kernels.element_state(q[i], v[i], a[i], u[i], ud[i], udd[i], *self.table.args(),
-                                  deflection[i], force[i], energy)  # fmt: skip
-            stored[i] = energy[springs].sum()
-            kinetic[i] += energy[inerters].sum()
+        inerter_energy = np.zeros(count)
+        kernels.element_series(q, v, a, u, ud, udd, *self.table.args(), deflection, force, stored,
+                               inerter_energy)  # fmt: skip
+        kinetic = 0.5 * np.einsum("ij,j,ij->i", v, self.m.mass, v) + inerter_energy
         events = self._events()
         return RunResult(
             system_name=self.system.name,

@@ -244,9 +244,8 @@ def check_step(
         # the ratio where the stepper is least stable gives a limit safe for all modes.
         # The estimate's own ratio, halved and doubled, is kept for the report.
         worst, _ = least_stable_damping(stepper)
-        zetas = np.unique(
-            np.clip([worst, top.damping_ratio, 0.5 * top.damping_ratio, 2 * top.damping_ratio], 0, 1)
-        )
+        ratio = top.damping_ratio
+        zetas = np.unique(np.clip([worst, ratio, 0.5 * ratio, 2 * ratio], 0, 1))
         eig = top.bound * (-zetas + 1j * np.sqrt(1 - zetas**2))
         source = "bound on the stiffest mode"
         notes.append(

@@ -82,7 +82,9 @@ def _state_matrix(M, C, K):
 def _control_poles(M, C, K):
     """Poles (Im ≥ 0 representatives and real poles) from python-control."""
     n = len(M)
-    sys_ = control.ss(_state_matrix(M, C, K), np.zeros((2 * n, 1)), np.eye(2 * n), np.zeros((2 * n, 1)))
+    sys_ = control.ss(
+        _state_matrix(M, C, K), np.zeros((2 * n, 1)), np.eye(2 * n), np.zeros((2 * n, 1))
+    )
     poles = np.asarray(sys_.poles())
     return poles[poles.imag >= -1e-9 * np.abs(poles)]
 
@@ -190,7 +192,13 @@ def test_uniform_chain_closed_forms(n, fixed_top):
 
 def test_mass_normalised_shapes_with_unequal_masses():
     masses = {"a": 2.0, "b": 7.5, "c": 0.8, "d": 3.3}
-    elements = [("g", "a", 5e4, 0.0), ("a", "b", 2e4, 0.0), ("b", "c", 8e3, 0.0), ("c", "d", 1.1e4, 0.0), ("a", "d", 3e3, 0.0)]
+    elements = [
+        ("g", "a", 5e4, 0.0),
+        ("a", "b", 2e4, 0.0),
+        ("b", "c", 8e3, 0.0),
+        ("c", "d", 1.1e4, 0.0),
+        ("a", "d", 3e3, 0.0),
+    ]
     system = System(
         name="unequal",
         bodies={b: Body(b, mass) for b, mass in masses.items()},
@@ -206,7 +214,9 @@ def test_mass_normalised_shapes_with_unequal_masses():
     np.testing.assert_allclose(phi.T @ Ko @ phi, np.diag(result.omega**2), rtol=1e-10, atol=1e-6)
     # modal mass with each shape scaled to unit largest displacement
     unit = phi / np.max(np.abs(phi), axis=0)
-    np.testing.assert_allclose(result.modal_mass, np.einsum("ij,ij->j", unit, Mo @ unit), rtol=1e-12)
+    np.testing.assert_allclose(
+        result.modal_mass, np.einsum("ij,ij->j", unit, Mo @ unit), rtol=1e-12
+    )
     # Mode.shape carries the same mass-normalised shape, largest entry positive
     for mode, column in zip(result.modes, phi.T, strict=True):
         shape = np.array([mode.shape[b] for b in result.body_ids])
@@ -238,12 +248,17 @@ def test_non_proportional_shuttle_against_python_control():
     np.testing.assert_allclose(lam, poles, rtol=1e-10)
     np.testing.assert_allclose(damped_eigenvalues(matrices), poles, rtol=1e-10)
     wn, zeta, _ = control.damp(
-        control.ss(_state_matrix(M, C, K), np.zeros((6, 1)), np.eye(6), np.zeros((6, 1))), doprint=False
+        control.ss(_state_matrix(M, C, K), np.zeros((6, 1)), np.eye(6), np.zeros((6, 1))),
+        doprint=False,
     )
     keep = np.argsort(wn)[::2]  # one of each conjugate pair
-    np.testing.assert_allclose([m.natural_frequency_hz for m in result.modes], wn[keep] / TWO_PI, rtol=1e-10)
+    np.testing.assert_allclose(
+        [m.natural_frequency_hz for m in result.modes], wn[keep] / TWO_PI, rtol=1e-10
+    )
     np.testing.assert_allclose([m.damping_ratio for m in result.modes], zeta[keep], rtol=1e-9)
-    np.testing.assert_allclose([m.damped_frequency_hz for m in result.modes], poles.imag / TWO_PI, rtol=1e-10)
+    np.testing.assert_allclose(
+        [m.damped_frequency_hz for m in result.modes], poles.imag / TWO_PI, rtol=1e-10
+    )
     for mode in result.modes:
         assert not mode.overdamped and not mode.rigid
 
@@ -254,8 +269,13 @@ def _rayleigh_chain(n, m, k, a, b):
     ids = [f"m{i}" for i in range(1, n + 1)]
     nodes = ["ground", *ids]
     springs = {f"k{j}": Spring(f"k{j}", (nodes[j - 1], nodes[j]), k) for j in range(1, n + 1)}
-    dampers = {f"c{j}": Damper(f"c{j}", (nodes[j - 1], nodes[j]), coefficient=b * k) for j in range(1, n + 1)}
-    dampers |= {f"g{j}": Damper(f"g{j}", ("ground", ids[j - 1]), coefficient=a * m) for j in range(1, n + 1)}
+    dampers = {
+        f"c{j}": Damper(f"c{j}", (nodes[j - 1], nodes[j]), coefficient=b * k)
+        for j in range(1, n + 1)
+    }
+    dampers |= {
+        f"g{j}": Damper(f"g{j}", ("ground", ids[j - 1]), coefficient=a * m) for j in range(1, n + 1)
+    }
     return System(
         name="rayleigh chain",
         bodies={i: Body(i, m) for i in ids},
@@ -282,13 +302,19 @@ def test_rayleigh_damped_chain_damping_ratios():
     zeta = a / (2 * omega) + b * omega / 2
     assert np.all(zeta < 1)
     np.testing.assert_allclose([mode.damping_ratio for mode in result.modes], zeta, rtol=1e-10)
-    np.testing.assert_allclose([mode.natural_frequency_hz for mode in result.modes], omega / TWO_PI, rtol=1e-10)
     np.testing.assert_allclose(
-        [mode.damped_frequency_hz for mode in result.modes], omega * np.sqrt(1 - zeta**2) / TWO_PI, rtol=1e-10
+        [mode.natural_frequency_hz for mode in result.modes], omega / TWO_PI, rtol=1e-10
+    )
+    np.testing.assert_allclose(
+        [mode.damped_frequency_hz for mode in result.modes],
+        omega * np.sqrt(1 - zeta**2) / TWO_PI,
+        rtol=1e-10,
     )
     poles = _control_poles(*_chain_by_hand(n, m, k, a, b))
     np.testing.assert_allclose(
-        np.sort_complex(np.array([mode.eigenvalue for mode in result.modes])), np.sort_complex(poles), rtol=1e-9
+        np.sort_complex(np.array([mode.eigenvalue for mode in result.modes])),
+        np.sort_complex(poles),
+        rtol=1e-9,
     )
 
 
@@ -305,7 +331,9 @@ def test_overdamped_modes_are_reported_as_real_entries():
     expected_real = w * np.array([-z + math.sqrt(z * z - 1), -z - math.sqrt(z * z - 1)])
     real = [mode for mode in result.modes if mode.overdamped]
     assert len(real) == 2
-    np.testing.assert_allclose(sorted(mode.eigenvalue.real for mode in real), np.sort(expected_real), rtol=1e-10)
+    np.testing.assert_allclose(
+        sorted(mode.eigenvalue.real for mode in real), np.sort(expected_real), rtol=1e-10
+    )
     for mode in real:
         assert mode.eigenvalue.imag == 0.0
         assert mode.damped_frequency_hz == 0.0
@@ -383,7 +411,9 @@ def test_floating_pair_has_a_rigid_body_mode(c):
     # memory]); the damper in parallel gives ζ = c/(2√(k μ)) with μ the reduced mass
     omega = math.sqrt(600.0 * 5.0 / 6.0)
     assert elastic[0].natural_frequency_hz == pytest.approx(omega / TWO_PI, rel=1e-12)
-    assert elastic[0].damping_ratio == pytest.approx(c / (2 * math.sqrt(600.0 * 6.0 / 5.0)), rel=1e-10, abs=1e-15)
+    assert elastic[0].damping_ratio == pytest.approx(
+        c / (2 * math.sqrt(600.0 * 6.0 / 5.0)), rel=1e-10, abs=1e-15
+    )
     np.testing.assert_allclose(result.omega, [0.0, omega], atol=1e-9)
     assert result.effective_mass == {}
 
@@ -403,7 +433,9 @@ def test_regression_rigid_body_mode_listed_once(c):
     poles = _control_poles(M, C, K)
     elastic = np.sort(np.abs(poles[np.abs(poles) > 1e-6]))
     np.testing.assert_allclose(
-        sorted(mode.natural_frequency_hz for mode in result.modes if not mode.rigid), elastic / TWO_PI, rtol=1e-9
+        sorted(mode.natural_frequency_hz for mode in result.modes if not mode.rigid),
+        elastic / TWO_PI,
+        rtol=1e-9,
     )
 
 
@@ -417,7 +449,10 @@ def test_damped_rigid_body_mode_keeps_its_decay():
     result = modal_analysis(assemble(system))
     values = sorted((mode.eigenvalue.real for mode in result.modes), reverse=True)
     np.testing.assert_allclose(values, [0.0, -10.0 / 4.0], atol=1e-12)
-    assert [mode.rigid for mode in sorted(result.modes, key=lambda m: -m.eigenvalue.real)] == [True, False]
+    assert [mode.rigid for mode in sorted(result.modes, key=lambda m: -m.eigenvalue.real)] == [
+        True,
+        False,
+    ]
 
 
 # ---------------------------------------------------------------- effective masses
@@ -433,26 +468,37 @@ def test_effective_masses_sum_to_total_mass(n):
     K = 2e5 * (2 * np.eye(n) - np.eye(n, k=1) - np.eye(n, k=-1))
     K[-1, -1] = 2e5
     _, phi = la.eigh(K, m * np.eye(n))
-    np.testing.assert_allclose(result.effective_mass["ground"], (phi.T @ (m * np.ones(n))) ** 2, rtol=1e-9, atol=1e-9 * m)
+    np.testing.assert_allclose(
+        result.effective_mass["ground"], (phi.T @ (m * np.ones(n))) ** 2, rtol=1e-9, atol=1e-9 * m
+    )
 
 
-@pytest.mark.parametrize("demo, spec", [("quarter_car.toml", QUARTER_CAR), ("shuttle_corner_with_seat.toml", SHUTTLE)])
+@pytest.mark.parametrize(
+    "demo, spec", [("quarter_car.toml", QUARTER_CAR), ("shuttle_corner_with_seat.toml", SHUTTLE)]
+)
 def test_demo_effective_masses(demo, spec):
     result = modal_analysis(assemble(lumped.load(DEMOS / demo)))
     ids, M, _, K = _matrices_by_hand(**spec)
     _, phi = la.eigh(K, M)
     total = sum(spec["bodies"].values())
     assert result.effective_mass["road"].sum() == pytest.approx(total, rel=1e-10)
-    np.testing.assert_allclose(result.effective_mass["road"], (phi.T @ M @ np.ones(len(ids))) ** 2, rtol=1e-9)
+    np.testing.assert_allclose(
+        result.effective_mass["road"], (phi.T @ M @ np.ones(len(ids))) ** 2, rtol=1e-9
+    )
 
 
 # ---------------------------------------------------------------- lumped modes --json
 
 
-@pytest.mark.parametrize("demo, spec", [("quarter_car.toml", QUARTER_CAR), ("shuttle_corner_with_seat.toml", SHUTTLE)])
+@pytest.mark.parametrize(
+    "demo, spec", [("quarter_car.toml", QUARTER_CAR), ("shuttle_corner_with_seat.toml", SHUTTLE)]
+)
 def test_modes_json(demo, spec):
     run = subprocess.run(
-        [*_lumped_command(), "modes", str(DEMOS / demo), "--json"], capture_output=True, text=True, timeout=120
+        [*_lumped_command(), "modes", str(DEMOS / demo), "--json"],
+        capture_output=True,
+        text=True,
+        timeout=120,
     )
     assert run.returncode == 0, run.stderr
     data = json.loads(run.stdout)
@@ -460,7 +506,13 @@ def test_modes_json(demo, spec):
     frequencies = [mode["natural_frequency_hz"] for mode in modes]
     assert frequencies == sorted(frequencies)
     for mode in modes:
-        assert {"natural_frequency_hz", "damped_frequency_hz", "undamped_frequency_hz", "damping_ratio", "shape"} <= set(mode)
+        assert {
+            "natural_frequency_hz",
+            "damped_frequency_hz",
+            "undamped_frequency_hz",
+            "damping_ratio",
+            "shape",
+        } <= set(mode)
         assert set(mode["shape"]) == set(spec["bodies"])
         assert all(isinstance(v, float) for v in mode["shape"].values())
     _, M, C, K = _matrices_by_hand(**spec)
@@ -468,7 +520,9 @@ def test_modes_json(demo, spec):
     poles = poles[np.argsort(np.abs(poles))]
     np.testing.assert_allclose(frequencies, np.abs(poles) / TWO_PI, rtol=1e-10)
     np.testing.assert_allclose([mode["damping_ratio"] for mode in modes], _ratios(poles), rtol=1e-9)
-    np.testing.assert_allclose([mode["damped_frequency_hz"] for mode in modes], poles.imag / TWO_PI, rtol=1e-10)
+    np.testing.assert_allclose(
+        [mode["damped_frequency_hz"] for mode in modes], poles.imag / TWO_PI, rtol=1e-10
+    )
     w2 = la.eigh(K, M, eigvals_only=True)
     np.testing.assert_allclose(
         sorted(mode["undamped_frequency_hz"] for mode in modes), np.sqrt(w2) / TWO_PI, rtol=1e-10

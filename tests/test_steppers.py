@@ -30,8 +30,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.optimize import brentq
 
-from lumped.steppers import STEPPERS, ButcherTableau, SecondOrderStepper, get_stepper
 from lumped.stability import critical_omega_h, max_stable_step
+from lumped.steppers import STEPPERS, ButcherTableau, SecondOrderStepper, get_stepper
 
 RTOL_LIMIT = 1e-9
 ZETAS = [0.0, 0.01, 0.05, 0.1, 0.3, 0.5, 0.7, 0.9, 1.0]
@@ -113,7 +113,9 @@ def test_roots_are_R_at_both_eigenvalues(stepper_id):
         expected = sorted([R(omega_h * mu), R(omega_h * mu.conjugate())], key=lambda c: c.imag)
         got = sorted(stepper.roots(omega_h, zeta), key=lambda c: c.imag)
         np.testing.assert_allclose(got, expected, rtol=1e-12, atol=1e-14)
-        assert stepper.spectral_radius(omega_h, zeta) == pytest.approx(abs(R(omega_h * mu)), rel=1e-12)
+        assert stepper.spectral_radius(omega_h, zeta) == pytest.approx(
+            abs(R(omega_h * mu)), rel=1e-12
+        )
 
 
 # ---------------------------------------------------------------- tableau self-check
@@ -205,7 +207,9 @@ def test_rk4_real_axis_limit_is_root_of_cubic():
 def test_rk4_imaginary_axis_limit_is_two_root_two():
     # |R(iy)|² = 1 − y⁶/72 + y⁸/576 for RK4: the limit is y² = 8 (Hairer & Wanner II
     # §IV.2 [recalled from memory])
-    assert critical_omega_h(STEPPERS["rk4"], 0.0)[0] == pytest.approx(2 * math.sqrt(2), rel=RTOL_LIMIT)
+    assert critical_omega_h(STEPPERS["rk4"], 0.0)[0] == pytest.approx(
+        2 * math.sqrt(2), rel=RTOL_LIMIT
+    )
     assert _rk_limit("rk4", 0.0) == pytest.approx(2 * math.sqrt(2), rel=RTOL_LIMIT)
 
 
@@ -231,12 +235,19 @@ def test_euler_and_heun_real_axis_limit_is_two(stepper_id):
     "stepper_id, zeta",
     # ζ = 0 for Euler and Heun (|R| − 1 below rounding near Ω = 0) is covered by
     # test_no_positive_step_is_stable_on_an_undamped_mode
-    [(s, z) for s in ("euler", "heun", "rk3", "rk4", "rk38") for z in ZETAS if z > 0 or s in ("rk3", "rk4", "rk38")],
+    [
+        (s, z)
+        for s in ("euler", "heun", "rk3", "rk4", "rk38")
+        for z in ZETAS
+        if z > 0 or s in ("rk3", "rk4", "rk38")
+    ],
 )
 def test_damped_limit_matches_root_finding(stepper_id, zeta):
     expected = _rk_limit(stepper_id, zeta)
     assert 0 < expected < math.inf
-    assert critical_omega_h(STEPPERS[stepper_id], zeta)[0] == pytest.approx(expected, rel=RTOL_LIMIT)
+    assert critical_omega_h(STEPPERS[stepper_id], zeta)[0] == pytest.approx(
+        expected, rel=RTOL_LIMIT
+    )
 
 
 @pytest.mark.parametrize("stepper_id", ["trapezoid", "backward-euler", "exact"])
@@ -286,7 +297,9 @@ def test_euler_damped_limit_is_two_zeta(zeta):
 def _own_one_step(update, omega_h, zeta):
     """The 2×2 one-step matrix of ``update(state, Ω, ζ)`` on x'' + 2ζx' + x = 0 (ω = 1,
     h = Ω), built by stepping the unit vectors."""
-    return np.column_stack([update(np.array(e, dtype=float), omega_h, zeta) for e in ((1, 0), (0, 1))])
+    return np.column_stack(
+        [update(np.array(e, dtype=float), omega_h, zeta) for e in ((1, 0), (0, 1))]
+    )
 
 
 def _symplectic_euler_old_velocity(state, h, zeta):
@@ -342,7 +355,9 @@ def test_symplectic_euler_docstring_pins_old_velocity_damping():
     rng = np.random.default_rng(3)
     for w, z in zip(rng.uniform(0.01, 2.5, 25), rng.uniform(0, 1, 25), strict=True):
         np.testing.assert_allclose(
-            stepper.amplification(w, z), _own_one_step(_symplectic_euler_old_velocity, w, z), atol=1e-14
+            stepper.amplification(w, z),
+            _own_one_step(_symplectic_euler_old_velocity, w, z),
+            atol=1e-14,
         )
 
 
@@ -353,7 +368,9 @@ def test_symplectic_euler_limit(zeta):
     expected = 2 * (math.sqrt(1 + zeta**2) - zeta)
     got = critical_omega_h(STEPPERS["symplectic-euler"], zeta)[0]
     assert got == pytest.approx(expected, rel=RTOL_LIMIT)
-    assert got == pytest.approx(_second_order_limit(_symplectic_euler_old_velocity, zeta), rel=RTOL_LIMIT)
+    assert got == pytest.approx(
+        _second_order_limit(_symplectic_euler_old_velocity, zeta), rel=RTOL_LIMIT
+    )
     implicit = _second_order_limit(_symplectic_euler_new_velocity, zeta)
     assert implicit == pytest.approx(2 * (math.sqrt(1 + zeta**2) + zeta), rel=RTOL_LIMIT)
     if zeta > 0:
@@ -401,7 +418,9 @@ def test_newmark_linear_acceleration_limit_is_two_root_three():
     # β = 1/6, γ = 1/2: Ω_crit = 1/√(γ/2 − β) = 2√3 (Hughes ch. 9 [recalled from memory])
     stepper = get_stepper("newmark", beta=1 / 6, gamma=0.5)
     assert critical_omega_h(stepper, 0.0)[0] == pytest.approx(2 * math.sqrt(3), rel=RTOL_LIMIT)
-    assert _second_order_limit(_newmark(1 / 6, 0.5), 0.0) == pytest.approx(2 * math.sqrt(3), rel=RTOL_LIMIT)
+    assert _second_order_limit(_newmark(1 / 6, 0.5), 0.0) == pytest.approx(
+        2 * math.sqrt(3), rel=RTOL_LIMIT
+    )
 
 
 def _hughes_limit(beta, gamma, zeta):
@@ -411,7 +430,10 @@ def _hughes_limit(beta, gamma, zeta):
     return (zeta * (gamma - 0.5) + math.sqrt(d + zeta**2 * (gamma - 0.5) ** 2)) / d
 
 
-@pytest.mark.parametrize("beta, gamma", [(1 / 6, 0.5), (0.0, 0.5), (0.1, 0.5), (0.25, 0.6), (0.2, 0.6), (0.2, 0.7), (0.3, 0.9)])
+@pytest.mark.parametrize(
+    "beta, gamma",
+    [(1 / 6, 0.5), (0.0, 0.5), (0.1, 0.5), (0.25, 0.6), (0.2, 0.6), (0.2, 0.7), (0.3, 0.9)],
+)
 @pytest.mark.parametrize("zeta", [0.0, 0.05, 0.2, 0.5, 1.0])
 def test_newmark_damped_limit_matches_hughes(beta, gamma, zeta):
     stepper = get_stepper("newmark", beta=beta, gamma=gamma)
@@ -441,7 +463,9 @@ def test_newmark_average_acceleration_equals_trapezoid_on_a_mode():
         for w in (0.01, 0.3, 1.0, 3.0, 40.0):
             mu = _mu(zeta)
             expected = np.sort_complex(np.array([R(w * mu), R(w * mu.conjugate())]))
-            np.testing.assert_allclose(np.sort_complex(newmark.roots(w, zeta)), expected, atol=1e-12)
+            np.testing.assert_allclose(
+                np.sort_complex(newmark.roots(w, zeta)), expected, atol=1e-12
+            )
 
 
 # ---------------------------------------------------------------- period errors
@@ -456,13 +480,17 @@ def _principal_angle(stepper, omega_h):
 def test_period_error_arcsin(stepper_id):
     # ω̄h = 2 arcsin(Ω/2) (Chopra ch. 5; Hughes ch. 9 [recalled from memory])
     w = np.linspace(0.01, 1.99, 100)
-    np.testing.assert_allclose(_principal_angle(STEPPERS[stepper_id], w), 2 * np.arcsin(w / 2), rtol=1e-10)
+    np.testing.assert_allclose(
+        _principal_angle(STEPPERS[stepper_id], w), 2 * np.arcsin(w / 2), rtol=1e-10
+    )
 
 
 def test_period_error_average_acceleration_arctan():
     # ω̄h = 2 arctan(Ω/2) (Chopra ch. 5; Hughes ch. 9 [recalled from memory])
     w = np.logspace(-2, 2, 100)
-    np.testing.assert_allclose(_principal_angle(get_stepper("newmark"), w), 2 * np.arctan(w / 2), rtol=1e-10)
+    np.testing.assert_allclose(
+        _principal_angle(get_stepper("newmark"), w), 2 * np.arctan(w / 2), rtol=1e-10
+    )
 
 
 # ---------------------------------------------------------------- linear systems
@@ -496,14 +524,21 @@ def _rk_matrix(tableau, A, h):
     return np.eye(n) + h * np.kron(b[None, :], np.eye(n)) @ stages
 
 
-@pytest.mark.parametrize("stepper_id, method", [("euler", "euler"), ("backward-euler", "backward_diff"), ("trapezoid", "bilinear")])
+@pytest.mark.parametrize(
+    "stepper_id, method",
+    [("euler", "euler"), ("backward-euler", "backward_diff"), ("trapezoid", "bilinear")],
+)
 @pytest.mark.parametrize("seed", [1, 2, 3])
 def test_tableau_on_linear_system_matches_cont2discrete(stepper_id, method, seed):
     A = _random_damped_system(seed)
     n = A.shape[0]
     h = 0.013
-    Ad = signal.cont2discrete((A, np.zeros((n, 1)), np.eye(n), np.zeros((n, 1))), h, method=method)[0]
-    np.testing.assert_allclose(_rk_matrix(STEPPERS[stepper_id].tableau, A, h), Ad, rtol=1e-11, atol=1e-12)
+    Ad = signal.cont2discrete((A, np.zeros((n, 1)), np.eye(n), np.zeros((n, 1))), h, method=method)[
+        0
+    ]
+    np.testing.assert_allclose(
+        _rk_matrix(STEPPERS[stepper_id].tableau, A, h), Ad, rtol=1e-11, atol=1e-12
+    )
     # and R(z) of the catalogue maps the eigenvalues of A onto those of the step matrix
     lam = np.linalg.eigvals(A)
     np.testing.assert_allclose(
@@ -520,12 +555,18 @@ def test_explicit_tableau_on_linear_system_is_truncated_exponential(stepper_id):
     order = {"heun": 2, "rk3": 3, "rk4": 4, "rk38": 4}[stepper_id]
     hA = h * A
     expected = sum(np.linalg.matrix_power(hA, k) / math.factorial(k) for k in range(order + 1))
-    np.testing.assert_allclose(_rk_matrix(STEPPERS[stepper_id].tableau, A, h), expected, rtol=1e-12, atol=1e-14)
+    np.testing.assert_allclose(
+        _rk_matrix(STEPPERS[stepper_id].tableau, A, h), expected, rtol=1e-12, atol=1e-14
+    )
     # each is within O(h^{p+1}) of the exact step e^{hA} (scipy.signal 'zoh')
     n = A.shape[0]
-    zoh = signal.cont2discrete((A, np.zeros((n, 1)), np.eye(n), np.zeros((n, 1))), h, method="zoh")[0]
+    zoh = signal.cont2discrete((A, np.zeros((n, 1)), np.eye(n), np.zeros((n, 1))), h, method="zoh")[
+        0
+    ]
     np.testing.assert_allclose(zoh, la.expm(hA), rtol=1e-12, atol=1e-14)
-    assert np.max(np.abs(expected - zoh)) < 2 * np.max(np.abs(np.linalg.matrix_power(hA, order + 1)))
+    assert np.max(np.abs(expected - zoh)) < 2 * np.max(
+        np.abs(np.linalg.matrix_power(hA, order + 1))
+    )
 
 
 def test_exact_stepper_roots_are_exponentials():
@@ -537,7 +578,11 @@ def test_exact_stepper_roots_are_exponentials():
     for value in lam:
         omega, zeta = abs(value), -value.real / abs(value)
         roots = stepper.roots(h * omega, zeta)
-        np.testing.assert_allclose(np.sort_complex(roots), np.sort_complex([np.exp(h * value), np.exp(h * value.conjugate())]), rtol=1e-12)
+        np.testing.assert_allclose(
+            np.sort_complex(roots),
+            np.sort_complex([np.exp(h * value), np.exp(h * value.conjugate())]),
+            rtol=1e-12,
+        )
 
 
 # ---------------------------------------------------------------- excess sign

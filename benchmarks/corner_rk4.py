@@ -1,0 +1,98 @@
+"""Benchmark: the 2-body corner (quarter-car demo made linear: no end stop, tyre in
+both directions, mean damper), RK4, 10 s at h = 0.1 ms (100 000 steps, output at 1 kHz).
+
+Targets (issue: time simulation engine): under 10 ms after compilation; and at 1e-6
+relative error, at least 100× faster than the fastest scipy solve_ivp method reaching
+the same error. Error: the largest deviation over output samples and states from a
+tight-tolerance reference (solve_ivp DOP853, rtol 1e-13, on the same right-hand side),
+each state divided by its largest magnitude. Everything runs in this process.
+
+Run: python benchmarks/corner_rk4.py
+"""
+
+import dataclasses
+
+import numpy as np
+from scipy.integrate import solve_ivp
+
+import lumped
+import lumped.simulate
+from _timing import median_time
+from lumped.convergence import relative_error
+from lumped.simulate import simulate
+
+TARGET_MS = 10.0
+
+
+def linear_corner() -> lumped.System:
+    system = lumped.load(lumped.demo_path("quarter_car"))
+    springs = {k: dataclasses.replace(s, gap=None, gap_stiffness=None, acts="both") for k, s in system.springs.items()}
+    dampers = {k: lumped.Damper(d.id, d.between, coefficient=d.linear_coefficient) for k, d in system.dampers.items()}
+    return dataclasses.replace(system, springs=springs, dampers=dampers)
+
+
+def right_hand_side(system: lumped.System):
+    """The engine's own compiled element loop as a solve_ivp right-hand side."""
+    matrices = lumped.assemble(system)
+    static = lumped.static_equilibrium(matrices)
+    probe = lumped.simulate._Engine(system, matrices, static, lumped.get_stepper("rk4"), 1e-3, 10.0, 10, 1, 12)
+    n = matrices.n
+    acc, rates = np.zeros(n), np.zeros(3)
+
+    def rhs(t, y):
+        u, ud, udd, F = probe.inputs.at(np.array(t))
+        probe._accelerations(y[:n], y[n:], u, ud, udd, F, acc, rates)
+        return np.concatenate([y[n:], acc])
+
+    return rhs
+
+
+def states(run) -> np.ndarray:
+    return np.hstack([run.displacement, run.velocity])
+
+
+def main() -> None:
+    system = linear_corner()
+    rhs = right_hand_side(system)
+    times = np.linspace(0.0, 10.0, 10001)
+    tight = solve_ivp(rhs, (0, 10.0), np.zeros(4), method="DOP853", t_eval=times, rtol=1e-13,
+                      atol=1e-16, max_step=0.01)  # fmt: skip
+    reference = tight.y.T
+    simulate(system, "rk4", 1e-4, 10.0, output_rate=1000, check=False)  # compile
+    seconds, run = median_time(lambda: simulate(system, "rk4", 1e-4, 10.0, output_rate=1000, check=False), 7)
+    print(f"rk4, 100 000 steps at 0.1 ms, output 1 kHz: {seconds * 1e3:.1f} ms median of 7 "
+          f"(target < {TARGET_MS:g} ms: {'met' if seconds * 1e3 < TARGET_MS else 'NOT met'}); "
+          f"error {relative_error(states(run), reference):.2e}")
+    # At 1e-6 relative error: the largest RK4 step that reaches it, against solve_ivp.
+    for dt in (4e-3, 2e-3, 1e-3, 5e-4, 2.5e-4):
+        run = simulate(system, "rk4", dt, 10.0, output_every=max(1, round(1e-3 / dt)), check=False)
+        if len(run.time) == len(times) and relative_error(states(run), reference) <= 1e-6:
+            break
+    seconds_rk4, run = median_time(
+        lambda: simulate(system, "rk4", dt, 10.0, output_every=max(1, round(1e-3 / dt)), check=False), 7
+    )
+    error_rk4 = relative_error(states(run), reference)
+    print(f"rk4 at 1e-6: dt = {dt * 1e3:g} ms, {seconds_rk4 * 1e3:.1f} ms, error {error_rk4:.2e}")
+
+    best = None
+    for method in ("RK45", "DOP853", "LSODA", "Radau", "BDF"):
+        for rtol in (1e-6, 1e-7, 1e-8, 1e-9, 1e-10, 1e-11):
+            def solve(method=method, rtol=rtol):
+                return solve_ivp(rhs, (0, 10.0), np.zeros(4), method=method, t_eval=times,
+                                 rtol=rtol, atol=rtol * 1e-3, max_step=0.05)  # fmt: skip
+            solution = solve()
+            error = relative_error(solution.y.T, reference)
+            if error <= 1e-6:
+                seconds_ivp, _ = median_time(solve, 3)
+                print(f"solve_ivp {method:6s} rtol {rtol:.0e}: {seconds_ivp * 1e3:8.1f} ms, error {error:.2e}")
+                if best is None or seconds_ivp < best[0]:
+                    best = (seconds_ivp, method)
+                break
+    if best:
+        ratio = best[0] / seconds_rk4
+        print(f"fastest solve_ivp at 1e-6: {best[1]} {best[0] * 1e3:.1f} ms; ratio solve_ivp / rk4 = {ratio:.0f}× "
+              f"(target ≥ 100×: {'met' if ratio >= 100 else 'NOT met'})")
+
+
+if __name__ == "__main__":
+    main()
