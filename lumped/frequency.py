@@ -35,6 +35,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import scipy.sparse as sp
+import scipy.linalg as la
 import scipy.sparse.linalg as spla
 from scipy.optimize import minimize_scalar
 
@@ -72,8 +73,10 @@ MAX_REFINE_POINTS = 8000
 UNDAMPED_REFINE_ZETA = 1e-6
 #: Relative tolerance in frequency of a refined peak.
 PEAK_TOLERANCE = 1e-6
-#: Bytes of stacked dynamic-stiffness matrices per dense batch.
+#: Bytes of working arrays per batch of frequencies.
 BATCH_BYTES = 64 * 2**20
+#: Sparse systems whose reordered half-bandwidth is at most this use the banded solver.
+BANDED_LIMIT = 64
 #: Lowest modes found for the grid of a system beyond DENSE_LIMIT bodies.
 LARGE_SYSTEM_MODES = 20
 
@@ -304,81 +307,135 @@ def _output_kind(output_id, quantity, body_ids, element_ids) -> tuple[str, str]:
 
 
 class _Problem:
-    """Z(ω) Q = R(ω) for chosen inputs, and the chosen outputs from Q."""
+    """Z(ω) Q = R(ω) for chosen inputs, and the chosen outputs from Q.
+
+    Dense systems stack Z(ω) over a batch of frequencies for one ``numpy.linalg.solve``.
+    Sparse systems share one sparsity pattern for K, C and M, so Z(ω) is assembled by
+    adding three data vectors; after a reverse Cuthill–McKee ordering, a narrow band
+    (chains, ladders) is solved by LAPACK's banded solver, anything else by SuperLU.
+    """
 
     def __init__(self, matrices: Matrices, inputs: list[_Input], bodies: list[int], elements: list[int],
                  dense: bool | None = None):  # fmt: skip
-        self.m = matrices
+        self.m = m = matrices
         self.inputs = inputs
         self.bodies = np.asarray(bodies, dtype=np.int64)
         self.elements = np.asarray(elements, dtype=np.int64)
-        self.dense = matrices.n <= DENSE_FREQUENCY_LIMIT if dense is None else dense
-        m = matrices
+        self.dense = m.n <= DENSE_FREQUENCY_LIMIT if dense is None else dense
         if self.dense:
             self.M, self.C, self.K = (x.toarray() for x in (m.M, m.C, m.K))
         else:
-            self.M, self.C, self.K = (x.tocsc() for x in (m.M, m.C, m.K))
+            self._sparse_setup()
+        self.coupling = {
+            item.index: tuple(x[:, [item.index]].toarray().ravel() for x in (m.K_s, m.C_s, m.M_s))
+            for item in inputs if item.kind == "support"
+        }  # fmt: skip
         self.D = m.D[self.elements].tocsr() if len(self.elements) else None
-        self.D_s = m.D_s[self.elements].tocsr() if len(self.elements) else None
+        self.D_s = m.D_s[self.elements].toarray() if len(self.elements) else None
         self.k = m.stiffness[self.elements]
         self.c = m.damping[self.elements]
         self.b = m.inertance[self.elements]
 
+    def _sparse_setup(self) -> None:
+        from scipy.sparse.csgraph import reverse_cuthill_mckee
+
+        m = self.m
+        pattern = (abs(m.K) + abs(m.C) + abs(m.M)).tocsr()
+        pattern.data[:] = 1.0
+        perm = np.asarray(reverse_cuthill_mckee(pattern, symmetric_mode=True), dtype=np.int64)
+        self.perm = perm
+        self.inverse = np.argsort(perm)
+
+        shared = pattern[perm][:, perm].tocoo()
+        order = np.lexsort((shared.row, shared.col))
+        rows, cols = shared.row[order].astype(np.int64), shared.col[order].astype(np.int64)
+
+        def values(x):  # x reordered, read on the shared pattern
+            return np.asarray(x.tocsr()[perm][:, perm][rows, cols], dtype=float).ravel()
+
+        self.k_data, self.c_data, self.m_data = values(m.K), values(m.C), values(m.M)
+        self.rows, self.cols = rows, cols
+        band = int(np.max(np.abs(rows - cols))) if len(rows) else 0
+        self.band = band
+        self.banded = band <= BANDED_LIMIT
+        if self.banded:
+            self.band_index = (band + rows - cols, cols)
+        else:
+            n = m.n
+            self.csc_template = sp.csc_matrix((self.k_data.astype(complex), (rows, cols)), shape=(n, n))
+            self.csc_template.sort_indices()
+            # Map from the COO order to the CSC data order.
+            probe = sp.csc_matrix((np.arange(1, len(rows) + 1, dtype=float), (rows, cols)), shape=(n, n))
+            probe.sort_indices()
+            self.csc_order = probe.data.astype(np.int64) - 1
+
     def _rhs(self, w: np.ndarray, which: list[int]) -> np.ndarray:
         """(F, n, inputs) right-hand sides."""
-        m = self.m
-        R = np.zeros((len(w), m.n, len(which)), dtype=complex)
+        R = np.zeros((len(w), self.m.n, len(which)), dtype=complex)
         for col, j in enumerate(which):
             item = self.inputs[j]
             if item.kind == "support":
-                s = item.index
-                ks = m.K_s[:, [s]].toarray().ravel()
-                cs = m.C_s[:, [s]].toarray().ravel()
-                ms = m.M_s[:, [s]].toarray().ravel()
+                ks, cs, ms = self.coupling[item.index]
                 R[:, :, col] = -(ks[None, :] + 1j * w[:, None] * cs[None, :] - (w**2)[:, None] * ms[None, :])
             else:
                 R[:, item.index, col] = 1.0
         return R
 
+    def _solve_sparse(self, w: float, R: np.ndarray) -> np.ndarray:
+        data = self.k_data + 1j * w * self.c_data - w * w * self.m_data
+        rhs = R[self.perm]
+        try:
+            if self.banded:
+                b = self.band
+                ab = np.zeros((2 * b + 1, self.m.n), dtype=complex)
+                ab[self.band_index] = data
+                x = la.solve_banded((b, b), ab, rhs, check_finite=False)
+            else:
+                Z = self.csc_template.copy()
+                Z.data = data[self.csc_order]
+                x = spla.splu(Z).solve(rhs)
+        except (la.LinAlgError, RuntimeError):  # exactly singular: an undamped resonance
+            return np.full(R.shape, np.inf, dtype=complex)
+        return x[self.inverse]
+
     def solve(self, frequency: np.ndarray, which: list[int] | None = None):
         """(displacement, deflection, force) arrays (F, items, inputs) of the chosen
-        outputs at ``frequency`` (Hz) for inputs ``which`` (default all)."""
+        outputs at ``frequency`` (Hz) for inputs ``which`` (default all), solved in
+        batches that bound the memory."""
         which = list(range(len(self.inputs))) if which is None else which
         w = 2 * np.pi * np.asarray(frequency, dtype=float)
-        n, F = self.m.n, len(w)
-        R = self._rhs(w, which)
-        Q = np.empty((F, n, len(which)), dtype=complex)
-        if self.dense:
-            batch = max(1, int(BATCH_BYTES // (16 * n * n)))
-            for start in range(0, F, batch):
-                ws = w[start:start + batch]
+        n, F, n_in = self.m.n, len(w), len(which)
+        ne = len(self.elements)
+        displacement = np.empty((F, len(self.bodies), n_in), dtype=complex)
+        deflection = np.empty((F, ne, n_in), dtype=complex)
+        force = np.empty((F, ne, n_in), dtype=complex)
+        per_frequency = 16 * n * (n if self.dense else 1) + 16 * (n + ne) * n_in
+        batch = max(1, int(BATCH_BYTES // per_frequency))
+        dynamic = None
+        for start in range(0, F, batch):
+            ws = w[start:start + batch]
+            R = self._rhs(ws, which)
+            if self.dense:
                 Z = self.K[None] + 1j * ws[:, None, None] * self.C[None] - (ws**2)[:, None, None] * self.M[None]
                 try:
-                    Q[start:start + batch] = np.linalg.solve(Z, R[start:start + batch])
+                    Q = np.linalg.solve(Z, R)
                 except np.linalg.LinAlgError:
-                    for i in range(len(ws)):
-                        Q[start + i] = _solve_one_dense(Z[i], R[start + i])
-        else:
-            for i, wi in enumerate(w):
-                Z = (self.K + 1j * wi * self.C - wi * wi * self.M).tocsc()
-                try:
-                    Q[i] = spla.splu(Z).solve(R[i])
-                except RuntimeError:  # exactly singular: an undamped resonance
-                    Q[i] = np.inf
-        displacement = Q[:, self.bodies, :]
-        if self.D is None:
-            empty = np.zeros((F, 0, len(which)), dtype=complex)
-            return displacement, empty, empty
-        ne = len(self.elements)
-        # Δ = D Q + D_s U, all frequencies and inputs at once (D sparse).
-        flat = Q.transpose(1, 0, 2).reshape(n, F * len(which))
-        deflection = np.asarray(self.D @ flat).reshape(ne, F, len(which)).transpose(1, 0, 2)
-        for col, j in enumerate(which):
-            item = self.inputs[j]
-            if item.kind == "support":
-                deflection[:, :, col] += self.D_s[:, [item.index]].toarray().ravel()[None, :]
-        dynamic = self.k[None, :] + 1j * w[:, None] * self.c[None, :] - (w**2)[:, None] * self.b[None, :]
-        force = dynamic[:, :, None] * deflection
+                    Q = np.stack([_solve_one_dense(Z[i], R[i]) for i in range(len(ws))])
+            else:
+                Q = np.stack([self._solve_sparse(wi, R[i]) for i, wi in enumerate(ws)])
+            part = slice(start, start + len(ws))
+            displacement[part] = Q[:, self.bodies, :]
+            if ne:
+                # Δ = D Q + D_s U, all frequencies and inputs of the batch at once (D sparse).
+                flat = Q.transpose(1, 0, 2).reshape(n, len(ws) * n_in)
+                d = np.asarray(self.D @ flat).reshape(ne, len(ws), n_in).transpose(1, 0, 2)
+                for col, j in enumerate(which):
+                    item = self.inputs[j]
+                    if item.kind == "support":
+                        d[:, :, col] += self.D_s[:, item.index][None, :]
+                dynamic = self.k[None, :] + 1j * ws[:, None] * self.c[None, :] - (ws**2)[:, None] * self.b[None, :]
+                deflection[part] = d
+                force[part] = dynamic[:, :, None] * d
         return displacement, deflection, force
 
 

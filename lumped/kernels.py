@@ -65,14 +65,14 @@ def _curve_force(dv, lo, hi, cv, cf):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _node(x, u, n, i):
-    return x[i] if i < n else u[i - n]
-
-
-@njit(cache=True, inline="always", error_model="numpy")
-def body_accelerations(q, v, u, ud, udd, F, model, acc, rates):
+def body_accelerations(q, v, U, Ud, Udd, FF, j, col, model, acc, rates):
     """Fill ``acc`` (n) with body accelerations and ``rates`` (3) with the power
     dissipated, delivered by supports and delivered by forces (W).
+
+    Inputs are read as ``U[j, col, s]`` (support displacement), ``Ud`` (velocity),
+    ``Udd`` (acceleration) and ``FF[j, col, f]`` (force values): the chunk kernels'
+    stage tables are passed whole rather than sliced, since every array handed to a
+    compiled function costs reference counting in the hot loop.
 
     ``model`` is the tuple built by the driver: ``(links, nonlinear, inerters,
     table, minv, Minv, dense_mass, fbody, fscale)``. ``links = (a, b, k, c)`` are the
@@ -100,10 +100,11 @@ def body_accelerations(q, v, u, ud, udd, F, model, acc, rates):
             force[a] += f
             force[b] -= f
         else:
-            sa = ud[a - n] if a >= n else 0.0
-            sb = ud[b - n] if b >= n else 0.0
-            d = _node(q, u, n, b) - _node(q, u, n, a)
-            dv = _node(v, ud, n, b) - _node(v, ud, n, a)
+            sa = Ud[j, col, a - n] if a >= n else 0.0
+            sb = Ud[j, col, b - n] if b >= n else 0.0
+            # (no helper function here: passing arrays to one costs reference counting)
+            d = (q[b] if b < n else U[j, col, b - n]) - (q[a] if a < n else U[j, col, a - n])
+            dv = (v[b] if b < n else Ud[j, col, b - n]) - (v[a] if a < n else Ud[j, col, a - n])
             f = lk[e] * d + lc[e] * dv
             dissipated += lc[e] * dv * dv
             supports += f * (sb - sa)
@@ -111,12 +112,12 @@ def body_accelerations(q, v, u, ud, udd, F, model, acc, rates):
                 force[a] += f
             if b < n:
                 force[b] -= f
-    for j in range(nonlinear.shape[0]):
-        e = nonlinear[j]
+    for m in range(nonlinear.shape[0]):
+        e = nonlinear[m]
         a = ea[e]
         b = eb[e]
-        d = _node(q, u, n, b) - _node(q, u, n, a)
-        dv = _node(v, ud, n, b) - _node(v, ud, n, a)
+        d = (q[b] if b < n else U[j, col, b - n]) - (q[a] if a < n else U[j, col, a - n])
+        dv = (v[b] if b < n else Ud[j, col, b - n]) - (v[a] if a < n else Ud[j, col, a - n])
         kd = kind[e]
         if kd == SPRING:
             f = _spring_force(d, k[e], fs[e], acts[e], gap[e], gk[e])
@@ -126,51 +127,52 @@ def body_accelerations(q, v, u, ud, udd, F, model, acc, rates):
         else:
             f = _curve_force(dv, coff[e], coff[e + 1], cv, cf)
             dissipated += f * dv
-        sa = ud[a - n] if a >= n else 0.0
-        sb = ud[b - n] if b >= n else 0.0
+        sa = Ud[j, col, a - n] if a >= n else 0.0
+        sb = Ud[j, col, b - n] if b >= n else 0.0
         supports += f * (sb - sa)
         if a < n:
             force[a] += f
         if b < n:
             force[b] -= f
-    for j in range(inerters.shape[0]):
+    for m in range(inerters.shape[0]):
         # Only the support-side part of an inerter's force is known here; its
         # body-side inertia is in the mass matrix.
-        e = inerters[j]
+        e = inerters[m]
         a = ea[e]
         b = eb[e]
         f = 0.0
         if a >= n:
-            f -= k[e] * udd[a - n]
+            f -= k[e] * Udd[j, col, a - n]
         if b >= n:
-            f += k[e] * udd[b - n]
+            f += k[e] * Udd[j, col, b - n]
         if a < n:
             force[a] += f
         if b < n:
             force[b] -= f
     work = 0.0
-    for j in range(fbody.shape[0]):
-        load = fscale[j] * F[j]
-        force[fbody[j]] += load
-        work += load * v[fbody[j]]
+    for i in range(fbody.shape[0]):
+        load = fscale[i] * FF[j, col, i]
+        force[fbody[i]] += load
+        work += load * v[fbody[i]]
     if dense_mass:
         scratch = force.copy()
         for i in range(n):
             s = 0.0
-            for j in range(n):
-                s += Minv[i, j] * scratch[j]
+            for r in range(n):
+                s += Minv[i, r] * scratch[r]
             acc[i] = s
     else:
         for i in range(n):
             acc[i] = minv[i] * force[i]
-    for j in range(inerters.shape[0]):  # an inerter's whole force b·δ'' works on its support
-        e = inerters[j]
+    for m in range(inerters.shape[0]):  # an inerter's whole force b·δ'' works on its support
+        e = inerters[m]
         a = ea[e]
         b = eb[e]
         if a >= n or b >= n:
-            sa = ud[a - n] if a >= n else 0.0
-            sb = ud[b - n] if b >= n else 0.0
-            supports += k[e] * (_node(acc, udd, n, b) - _node(acc, udd, n, a)) * (sb - sa)
+            sa = Ud[j, col, a - n] if a >= n else 0.0
+            sb = Ud[j, col, b - n] if b >= n else 0.0
+            relative = (acc[b] if b < n else Udd[j, col, b - n]) - (acc[a] if a < n else Udd[j, col, a - n])
+            supports += k[e] * relative * (sb - sa)
     rates[0] = dissipated
     rates[1] = supports
     rates[2] = work
@@ -259,16 +261,16 @@ def _spring_energy(d, k, fs, acts, gap, gk):
 
 
 @njit(cache=True, error_model="numpy")
-def _contact_values(q, u, n, watch_element, watch_kind, table, out):
+def _contact_values(q, U, j, col, n, watch_element, watch_kind, table, out):
     """For each watched element, a value whose sign change is an event: for one-sided
     springs fs + kδ (the force it would carry), for end stops |δ| − gap."""
     ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf = table
     for w in range(watch_element.shape[0]):
         e = watch_element[w]
-        i = ea[e]
-        j = eb[e]
-        xa = q[i] if i < n else u[i - n]
-        xb = q[j] if j < n else u[j - n]
+        a = ea[e]
+        b = eb[e]
+        xa = q[a] if a < n else U[j, col, a - n]
+        xb = q[b] if b < n else U[j, col, b - n]
         d = xb - xa
         if watch_kind[w] == 0:
             out[w] = fs[e] + k[e] * d
@@ -301,10 +303,6 @@ def rk_chunk(
     acc = np.zeros(n)
     rates = np.zeros(3)
     values = np.zeros(watch_element.shape[0])
-    ub = np.zeros(U.shape[2])
-    udb = np.zeros(U.shape[2])
-    uddb = np.zeros(U.shape[2])
-    fb = np.zeros(FF.shape[2])
     m = n_out
     ne = n_ev
     for j in range(nsteps):
@@ -318,8 +316,7 @@ def rk_chunk(
                         sv += h * A[i, l] * kv[l, r]
                 qs[r] = sq
                 vs[r] = sv
-            _copy_inputs(U, Ud, Udd, FF, j, stage_col[i], ub, udb, uddb, fb)
-            body_accelerations(qs, vs, ub, udb, uddb, fb, model, acc, rates)
+            body_accelerations(qs, vs, U, Ud, Udd, FF, j, stage_col[i], model, acc, rates)
             for r in range(n):
                 kq[i, r] = vs[r]
                 kv[i, r] = acc[r]
@@ -345,28 +342,15 @@ def rk_chunk(
             energy[p] += h * de
         step = k0 + j + 1
         if watch_element.shape[0] > 0:
-            ne = _record_events(q, U[j, end_col], n, watch_element, watch_kind, model[3], watch_prev,
+            ne = _record_events(q, U, j, end_col, n, watch_element, watch_kind, model[3], watch_prev,
                                 values, step, ev_step, ev_frac, ev_watch, ev_value, ne)  # fmt: skip
         if not (worst <= q_limit):
             return DIVERGED, j + 1, m, ne
         if step % out_every == 0 and m < out_q.shape[0]:
-            body_accelerations(q, v, U[j, end_col], Ud[j, end_col], Udd[j, end_col],
-                               FF[j, end_col], model, acc, rates)  # fmt: skip
+            body_accelerations(q, v, U, Ud, Udd, FF, j, end_col, model, acc, rates)
             _store(m, step, q, v, acc, energy, out_q, out_v, out_a, out_e, out_step)
             m += 1
     return OK, nsteps, m, ne
-
-
-@njit(cache=True, inline="always", error_model="numpy")
-def _copy_inputs(U, Ud, Udd, FF, j, col, ub, udb, uddb, fb):
-    """Copy step j's inputs at stage column ``col`` into flat buffers (cheaper than
-    slicing a view per stage)."""
-    for r in range(ub.shape[0]):
-        ub[r] = U[j, col, r]
-        udb[r] = Ud[j, col, r]
-        uddb[r] = Udd[j, col, r]
-    for r in range(fb.shape[0]):
-        fb[r] = FF[j, col, r]
 
 
 @njit(cache=True, inline="always", error_model="numpy")
@@ -381,9 +365,9 @@ def _store(m, step, q, v, acc, energy, out_q, out_v, out_a, out_e, out_step):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _record_events(q, u, n, watch_element, watch_kind, table, watch_prev, values, step,
+def _record_events(q, U, j, col, n, watch_element, watch_kind, table, watch_prev, values, step,
                    ev_step, ev_frac, ev_watch, ev_value, ne):  # fmt: skip
-    _contact_values(q, u, n, watch_element, watch_kind, table, values)
+    _contact_values(q, U, j, col, n, watch_element, watch_kind, table, values)
     for w in range(values.shape[0]):
         old = watch_prev[w]
         new = values[w]
@@ -417,7 +401,7 @@ def symplectic_chunk(
     m = n_out
     ne = n_ev
     for j in range(nsteps):
-        body_accelerations(q, v, U[j, 0], Ud[j, 0], Udd[j, 0], FF[j, 0], model, acc, rates)
+        body_accelerations(q, v, U, Ud, Udd, FF, j, 0, model, acc, rates)
         worst = 0.0
         for r in range(n):
             v[r] += h * acc[r]
@@ -429,12 +413,12 @@ def symplectic_chunk(
             energy[p] += h * rates[p]
         step = k0 + j + 1
         if watch_element.shape[0] > 0:
-            ne = _record_events(q, U[j, 1], n, watch_element, watch_kind, model[3], watch_prev,
+            ne = _record_events(q, U, j, 1, n, watch_element, watch_kind, model[3], watch_prev,
                                 values, step, ev_step, ev_frac, ev_watch, ev_value, ne)  # fmt: skip
         if not (worst <= q_limit):
             return DIVERGED, j + 1, m, ne
         if step % out_every == 0 and m < out_q.shape[0]:
-            body_accelerations(q, v, U[j, 1], Ud[j, 1], Udd[j, 1], FF[j, 1], model, acc, rates)
+            body_accelerations(q, v, U, Ud, Udd, FF, j, 1, model, acc, rates)
             _store(m, step, q, v, acc, energy, out_q, out_v, out_a, out_e, out_step)
             m += 1
     return OK, nsteps, m, ne
@@ -442,13 +426,13 @@ def symplectic_chunk(
 
 @njit(cache=True, error_model="numpy")
 def affine_chunk(
-    G, H0, H1, z, energy, h, k0, nsteps, W, ns, nf,
+    G, H0, H1, z, energy, h, k0, nsteps, W, U, Ud, Udd, FF,
     Qmap, Vmap, VWmap, model,
     out_every, out_q, out_v, out_a, out_e, out_step, n_out, q_limit,
 ):  # fmt: skip
     """Linear steppers as one affine map per step, z₁ = G z + H0 w₀ + H1 w₁, where
     ``W[j] = [u, u', u'', F]`` holds the inputs at step j's start and ``W[j+1]`` at
-    its end. Body displacement q = Qmap z and velocity v = Vmap z + VWmap w; the
+    its end (and ``U[j, 0]`` … ``FF[j, 0]`` the same split by kind). Body displacement q = Qmap z and velocity v = Vmap z + VWmap w; the
     acceleration and energy rates come from :func:`body_accelerations`, the rates
     integrated by the trapezoid rule (second order, as these steppers)."""
     nz = z.shape[0]
@@ -460,7 +444,7 @@ def affine_chunk(
     rates = np.zeros(3)
     old = np.zeros(3)
     _affine_body_state(z, W[0], Qmap, Vmap, VWmap, q, v)
-    _rates_at(q, v, W[0], ns, nf, model, acc, old)
+    body_accelerations(q, v, U, Ud, Udd, FF, 0, 0, model, acc, old)
     m = n_out
     for j in range(nsteps):
         w0 = W[j]
@@ -475,7 +459,7 @@ def affine_chunk(
         for r in range(nz):
             z[r] = znew[r]
         _affine_body_state(z, w1, Qmap, Vmap, VWmap, q, v)
-        _rates_at(q, v, w1, ns, nf, model, acc, rates)
+        body_accelerations(q, v, U, Ud, Udd, FF, j + 1, 0, model, acc, rates)
         worst = 0.0
         for r in range(n):
             x = abs(q[r])
@@ -505,9 +489,3 @@ def _affine_body_state(z, w, Qmap, Vmap, VWmap, q, v):
             sv += VWmap[r, l] * w[l]
         q[r] = sq
         v[r] = sv
-
-
-@njit(cache=True, inline="always", error_model="numpy")
-def _rates_at(q, v, w, ns, nf, model, acc, rates):
-    body_accelerations(q, v, w[:ns], w[ns:2 * ns], w[2 * ns:3 * ns], w[3 * ns:3 * ns + nf],
-                       model, acc, rates)  # fmt: skip

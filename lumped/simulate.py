@@ -463,8 +463,9 @@ class _Engine:
         self.watch_prev = np.zeros(len(elements))
         if len(elements):
             u, *_ = self.inputs.at(np.array(0.0))
-            kernels._contact_values(self.q, u, self.m.n, self.watch_element, self.watch_kind,
-                                    self.table.args(), self.watch_prev)  # fmt: skip
+            kernels._contact_values(self.q, np.reshape(u, (1, 1, -1)), 0, 0, self.m.n,
+                                    self.watch_element, self.watch_kind, self.table.args(),
+                                    self.watch_prev)  # fmt: skip
 
     def _store_initial(self):
         u, ud, udd, F = self.inputs.at(np.array(0.0))
@@ -475,7 +476,8 @@ class _Engine:
         self.count += 1
 
     def _accelerations(self, q, v, u, ud, udd, F, acc, rates):
-        kernels.body_accelerations(q, v, u, ud, udd, F, self.model, acc, rates)
+        U, Ud, Udd, FF = (np.ascontiguousarray(np.reshape(x, (1, 1, -1))) for x in (u, ud, udd, F))
+        kernels.body_accelerations(q, v, U, Ud, Udd, FF, 0, 0, self.model, acc, rates)
 
     # -- the loop
 
@@ -621,7 +623,6 @@ class _Engine:
                 f"this system has {self.m.n}; use an explicit stepper (rk4) for larger systems"
             )
         cache: dict[float, tuple] = {}
-        ns, nf = len(self.m.support_ids), len(self.m.force_ids)
 
         def maps(h):
             if h not in cache:
@@ -643,7 +644,8 @@ class _Engine:
                 W = np.concatenate([u, ud, udd, F], axis=1)
                 z = to_state(self.q, self.v, W[0])
                 status, done, self.count, _ = kernels.affine_chunk(
-                    G, H0, H1, z, self.energy, step_h, start, n, W, ns, nf, Qmap, Vmap, VWmap,
+                    G, H0, H1, z, self.energy, step_h, start, n, W, u[:, None, :].copy(),
+                    ud[:, None, :].copy(), udd[:, None, :].copy(), F[:, None, :].copy(), Qmap, Vmap, VWmap,
                     self.model, self.every, self.out_q, self.out_v, self.out_a, self.out_e,
                     self.out_step, self.count, self.q_limit,
                 )  # fmt: skip
@@ -692,8 +694,8 @@ class _Engine:
         if len(self.watch_element):
             u, *_ = self.inputs.at(np.array(time))
             values = np.zeros_like(self.watch_prev)
-            kernels._contact_values(self.q, u, self.m.n, self.watch_element, self.watch_kind,
-                                    self.table.args(), values)  # fmt: skip
+            kernels._contact_values(self.q, np.reshape(u, (1, 1, -1)), 0, 0, self.m.n,
+                                    self.watch_element, self.watch_kind, self.table.args(), values)  # fmt: skip
             for w in np.flatnonzero((values > 0) != (self.watch_prev > 0)):
                 self.events.append(Event(time, self.m.element_ids[self.watch_element[w]],
                                          self._event_kind(w, values[w])))  # fmt: skip
