@@ -7,7 +7,6 @@ from __future__ import annotations
 import numpy as np
 from scipy.integrate import solve_ivp
 
-from lumped import kernels
 from lumped.assemble import assemble
 from lumped.model import System
 from lumped.static import static_equilibrium

@@ -95,6 +95,12 @@ def _quantity_arg(dimension: str):
 
     def convert(text: str) -> float:
         try:
+            value = parse_quantity(float(text), dimension)  # a plain number is SI
+        except ValueError:
+            pass
+        else:
+            return value
+        try:
             value = parse_quantity(text, dimension)
         except QuantityError as exc:
             raise argparse.ArgumentTypeError(str(exc)) from None

@@ -30,7 +30,7 @@ from lumped.excitation import Signal, signal_for
 from lumped.model import System
 from lumped.stability import StepCheck, check_step, step_count
 from lumped.static import StaticState, static_equilibrium
-from lumped.steppers import ExactStepper, RungeKuttaStepper, SecondOrderStepper, Stepper, get_stepper
+from lumped.steppers import RungeKuttaStepper, SecondOrderStepper, Stepper, get_stepper
 
 __all__ = ["RunError", "Event", "RunResult", "simulate", "ADAPTIVE_METHODS", "CHUNK_STEPS"]
 

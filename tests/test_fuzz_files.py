@@ -281,7 +281,7 @@ def merged(base: dict, extra: dict) -> dict:
     return out
 
 
-@settings(max_examples=2000, deadline=None, suppress_health_check=[HealthCheck.too_slow,
+@settings(max_examples=1500, deadline=None, suppress_health_check=[HealthCheck.too_slow,
           HealthCheck.function_scoped_fixture, HealthCheck.data_too_large])  # fmt: skip
 @given(document=documents, on_skeleton=st.booleans())
 def test_generated_documents_raise_only_model_error(document, on_skeleton, table_dir):
@@ -405,7 +405,7 @@ operations = st.lists(
 )  # fmt: skip
 
 
-@settings(max_examples=2000, deadline=None, suppress_health_check=[HealthCheck.too_slow,
+@settings(max_examples=2500, deadline=None, suppress_health_check=[HealthCheck.too_slow,
           HealthCheck.function_scoped_fixture])  # fmt: skip
 @given(
     document=st.sampled_from(CORPUS),
