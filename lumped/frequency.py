@@ -185,7 +185,8 @@ class FrequencyResponse:
     ``element_ids`` (m and N per unit input, force tension positive, linearised).
     ``input_ids`` lists the inputs: a support id (1 m of prescribed displacement) or a
     force id / body id (1 N on that body). ``natural_frequencies_hz`` and
-    ``damping_ratios`` are the modes the grid was refined around.
+    ``damping_ratios`` are the modes the grid was refined around; ``solver`` says
+    how Z(ω) was solved ("dense batched", "sparse banded" or "sparse LU").
     """
 
     frequency: np.ndarray
@@ -200,6 +201,7 @@ class FrequencyResponse:
     force: np.ndarray
     natural_frequencies_hz: tuple[float, ...] = ()
     damping_ratios: tuple[float, ...] = ()
+    solver: str = ""
     _problem: object = field(default=None, compare=False, repr=False)
 
     @property
@@ -368,6 +370,12 @@ class _Problem:
             probe = sp.csc_matrix((np.arange(1, len(rows) + 1, dtype=float), (rows, cols)), shape=(n, n))
             probe.sort_indices()
             self.csc_order = probe.data.astype(np.int64) - 1
+
+    @property
+    def solver(self) -> str:
+        if self.dense:
+            return "dense batched"
+        return "sparse banded" if self.banded else "sparse LU"
 
     def _rhs(self, w: np.ndarray, which: list[int]) -> np.ndarray:
         """(F, n, inputs) right-hand sides."""
@@ -696,6 +704,7 @@ def frequency_response(
         force=force,
         natural_frequencies_hz=tuple(float(x) for x in fn),
         damping_ratios=tuple(float(x) for x in zeta),
+        solver=problem.solver,
         _problem=problem,
     )
 

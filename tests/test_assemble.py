@@ -44,7 +44,7 @@ def linear_coefficient(damper: Damper) -> float:
     if damper.curve is None:
         return 0.5 * (damper.rebound + damper.compression)
     points = sorted(damper.curve)
-    segments = list(zip(points, points[1:]))
+    segments = list(zip(points, points[1:], strict=False))
 
     def slope(segment):
         (v0, f0), (v1, f1) = segment
@@ -95,7 +95,9 @@ def assert_matches_by_hand(system: System):
     assert matrices.support_ids == tuple(system.supports)
     expected = by_hand(system)
     for name, value in expected.items():
-        np.testing.assert_allclose(dense(getattr(matrices, name)), value, rtol=1e-12, atol=0, err_msg=name)
+        np.testing.assert_allclose(
+            dense(getattr(matrices, name)), value, rtol=1e-12, atol=0, err_msg=name
+        )
     return matrices
 
 
@@ -122,6 +124,28 @@ def test_quarter_car_matrices():
     np.testing.assert_array_equal(dense(m.M_s), [[0.0], [0.0]])
 
 
+def test_machine_on_mounts_coupling_blocks():
+    # Press on mounts on a floor bay on the building's columns: the floor's spring and
+    # damper tie the floor bay to the support, so K_s and C_s carry −k_floor, −c_floor
+    # in the floor bay's row (m_f x_f'' + ... = k_f u + c_f u').
+    system = lumped.load(DEMOS["machine_on_mounts"])
+    m = lumped.assemble(system)
+    assert m.body_ids == ("press", "floor_bay") and m.support_ids == ("columns",)
+    k_m, k_f = system.springs["mounts"].stiffness, system.springs["floor"].stiffness
+    c_m, c_f = system.dampers["mounts_loss"].coefficient, system.dampers["floor_loss"].coefficient
+    assert (k_m, k_f, c_m, c_f) == (
+        pytest.approx(1.1e6),
+        pytest.approx(48e6),
+        pytest.approx(6.5e3),
+        pytest.approx(28e3),
+    )
+    np.testing.assert_allclose(dense(m.K), [[k_m, -k_m], [-k_m, k_m + k_f]], rtol=1e-15)
+    np.testing.assert_allclose(dense(m.C), [[c_m, -c_m], [-c_m, c_m + c_f]], rtol=1e-15)
+    np.testing.assert_allclose(dense(m.K_s), [[0.0], [-k_f]], rtol=1e-15)
+    np.testing.assert_allclose(dense(m.C_s), [[0.0], [-c_f]], rtol=1e-15)
+    np.testing.assert_array_equal(dense(m.P), [[1.0], [0.0]])  # the unbalance acts on the press
+
+
 def test_quarter_car_natural_frequencies():
     # Undamped quarter vehicle: ω⁴ − ω²(k_s/m_s + (k_s+k_t)/m_u) + k_s k_t/(m_s m_u) = 0
     # (Gillespie ch. 5; Wong, Theory of Ground Vehicles, 4th ed., ch. 7 [recalled from memory]).
@@ -132,7 +156,9 @@ def test_quarter_car_natural_frequencies():
     b = k_s / m_s + (k_s + k_t) / m_u
     c = k_s * k_t / (m_s * m_u)
     omega_sq = np.array([(b - math.sqrt(b * b - 4 * c)) / 2, (b + math.sqrt(b * b - 4 * c)) / 2])
-    np.testing.assert_allclose(scipy.linalg.eigh(dense(m.K), dense(m.M), eigvals_only=True), omega_sq, rtol=1e-12)
+    np.testing.assert_allclose(
+        scipy.linalg.eigh(dense(m.K), dense(m.M), eigvals_only=True), omega_sq, rtol=1e-12
+    )
     # The body mode sits near the series-spring estimate, the wheel hop near √((k_s+k_t)/m_u).
     f = np.sqrt(omega_sq) / (2 * math.pi)
     assert f[0] == pytest.approx(math.sqrt(k_s * k_t / (k_s + k_t) / m_s) / (2 * math.pi), rel=0.05)
@@ -187,7 +213,9 @@ def test_two_equal_masses_three_equal_springs(m, k):
     matrices = lumped.assemble(two_masses_three_springs(m, k))
     np.testing.assert_allclose(dense(matrices.K), [[2 * k, -k], [-k, 2 * k]], rtol=1e-15)
     omega_sq, shapes = scipy.linalg.eigh(dense(matrices.K), dense(matrices.M))
-    np.testing.assert_allclose(np.sqrt(omega_sq), [math.sqrt(k / m), math.sqrt(3 * k / m)], rtol=1e-12)
+    np.testing.assert_allclose(
+        np.sqrt(omega_sq), [math.sqrt(k / m), math.sqrt(3 * k / m)], rtol=1e-12
+    )
     # Mode shapes [1, 1] and [1, −1].
     assert shapes[0, 0] * shapes[1, 0] > 0 and shapes[0, 1] * shapes[1, 1] < 0
     np.testing.assert_allclose(abs(shapes[0]), abs(shapes[1]), rtol=1e-12)
@@ -228,7 +256,10 @@ def test_uniform_chain_free_free(n):
     system = System(
         name="free chain",
         bodies={i: Body(i, mass) for i in ids},
-        springs={f"k{j}": Spring(f"k{j}", (a, b), k) for j, (a, b) in enumerate(zip(ids, ids[1:]), 1)},
+        springs={
+            f"k{j}": Spring(f"k{j}", (a, b), k)
+            for j, (a, b) in enumerate(zip(ids, ids[1:], strict=False), 1)
+        },
         floating=True,
     )
     assert lumped.check_system(system) == []
@@ -270,7 +301,9 @@ def test_every_demo_matches_a_construction_by_hand(name):
     assert matrices.element_ids == tuple(system.elements)
 
 
-def random_system(rng: np.random.Generator, n_bodies: int, n_supports: int, inerters: bool) -> System:
+def random_system(
+    rng: np.random.Generator, n_bodies: int, n_supports: int, inerters: bool
+) -> System:
     """A random connected system: a random tree over bodies and supports, then extra
     random elements of every kind (random values; invented)."""
     bodies = {f"b{i}": Body(f"b{i}", float(rng.uniform(0.1, 1e3))) for i in range(n_bodies)}
@@ -294,7 +327,10 @@ def random_system(rng: np.random.Generator, n_bodies: int, n_supports: int, iner
             dampers[f"c{j}"] = Damper(f"c{j}", (a, b), coefficient=float(rng.uniform(0, 1e4)))
         elif kind == 2:
             dampers[f"c{j}"] = Damper(
-                f"c{j}", (a, b), rebound=float(rng.uniform(0, 1e4)), compression=float(rng.uniform(0, 1e4))
+                f"c{j}",
+                (a, b),
+                rebound=float(rng.uniform(0, 1e4)),
+                compression=float(rng.uniform(0, 1e4)),
             )
         else:
             extra_inerters[f"i{j}"] = Inerter(f"i{j}", (a, b), float(rng.uniform(0, 50)))
@@ -330,7 +366,10 @@ def test_inerter_between_two_bodies_couples_the_masses():
         name="inerter between bodies",
         bodies={"lower": Body("lower", m1), "upper": Body("upper", m2)},
         supports={"ground": Support("ground")},
-        springs={"k1": Spring("k1", ("ground", "lower"), k), "k2": Spring("k2", ("lower", "upper"), k)},
+        springs={
+            "k1": Spring("k1", ("ground", "lower"), k),
+            "k2": Spring("k2", ("lower", "upper"), k),
+        },
         inerters={"flywheel": Inerter("flywheel", ("lower", "upper"), b)},
     )
     m = lumped.assemble(system)
@@ -402,7 +441,9 @@ def test_state_space_dense_against_the_textbook_form(name):
     np.testing.assert_allclose(ss.A, A, rtol=1e-12, atol=1e-12 * abs(A).max())
     np.testing.assert_allclose(ss.B, B, rtol=1e-12, atol=1e-12 * max(abs(B).max(), 1.0))
     n, n_s, n_f = m.n, len(m.support_ids), len(m.force_ids)
-    assert ss.state_labels == tuple(f"{b}.displacement" for b in m.body_ids) + tuple(f"{b}.velocity" for b in m.body_ids)
+    assert ss.state_labels == tuple(f"{b}.displacement" for b in m.body_ids) + tuple(
+        f"{b}.velocity" for b in m.body_ids
+    )
     assert len(ss.input_labels) == 3 * n_s + n_f == B.shape[1]
     assert ss.A.shape == (2 * n, 2 * n)
 
@@ -418,7 +459,9 @@ def test_state_space_operator_gives_the_same_products(name):
         x = rng.standard_normal(A.shape[1])
         w = rng.standard_normal(B.shape[1])
         np.testing.assert_allclose(ss.A @ x, A @ x, rtol=1e-10, atol=1e-10 * abs(A @ x).max())
-        np.testing.assert_allclose(ss.B @ w, B @ w, rtol=1e-10, atol=1e-10 * max(abs(B @ w).max(), 1.0))
+        np.testing.assert_allclose(
+            ss.B @ w, B @ w, rtol=1e-10, atol=1e-10 * max(abs(B @ w).max(), 1.0)
+        )
     X = rng.standard_normal((A.shape[1], 3))
     np.testing.assert_allclose(ss.A @ X, A @ X, rtol=1e-10, atol=1e-10 * abs(A @ X).max())
 
@@ -440,8 +483,12 @@ def test_quarter_car_modes_from_python_control():
     m = lumped.assemble(lumped.load(DEMOS["quarter_car"]))
     A, _ = textbook_state_space(m)
     ss = lumped.state_space(m)
-    wn_lib, zeta_lib, _ = control.damp(control.ss(ss.A, np.zeros((4, 1)), np.zeros((1, 4)), 0), doprint=False)
-    wn_ref, zeta_ref, _ = control.damp(control.ss(A, np.zeros((4, 1)), np.zeros((1, 4)), 0), doprint=False)
+    wn_lib, zeta_lib, _ = control.damp(
+        control.ss(ss.A, np.zeros((4, 1)), np.zeros((1, 4)), 0), doprint=False
+    )
+    wn_ref, zeta_ref, _ = control.damp(
+        control.ss(A, np.zeros((4, 1)), np.zeros((1, 4)), 0), doprint=False
+    )
     np.testing.assert_allclose(np.sort(wn_lib), np.sort(wn_ref), rtol=1e-10)
     np.testing.assert_allclose(np.sort(zeta_lib), np.sort(zeta_ref), rtol=1e-8)
 
@@ -502,9 +549,21 @@ def test_nonlinear_tables_list_exactly_the_nonlinear_items(name):
     m = lumped.assemble(system)
     nl = m.nonlinear
     ids = m.element_ids
-    assert {ids[i] for i in nl.end_stop_index} == {s.id for s in system.springs.values() if s.gap is not None}
-    assert {ids[i] for i in nl.one_sided_index} == {s.id for s in system.springs.values() if s.acts != "both"}
-    assert {ids[i] for i in nl.asymmetric_index} == {d.id for d in system.dampers.values() if d.rebound is not None}
-    assert {ids[i] for i in nl.curve_index} == {d.id for d in system.dampers.values() if d.curve is not None}
+    assert {ids[i] for i in nl.end_stop_index} == {
+        s.id for s in system.springs.values() if s.gap is not None
+    }
+    assert {ids[i] for i in nl.one_sided_index} == {
+        s.id for s in system.springs.values() if s.acts != "both"
+    }
+    assert {ids[i] for i in nl.asymmetric_index} == {
+        d.id for d in system.dampers.values() if d.rebound is not None
+    }
+    assert {ids[i] for i in nl.curve_index} == {
+        d.id for d in system.dampers.values() if d.curve is not None
+    }
     signs = {ids[i]: s for i, s in zip(nl.one_sided_index, nl.one_sided_sign, strict=True)}
-    assert signs == {s.id: (1.0 if s.acts == "compression" else -1.0) for s in system.springs.values() if s.acts != "both"}
+    assert signs == {
+        s.id: (1.0 if s.acts == "compression" else -1.0)
+        for s in system.springs.values()
+        if s.acts != "both"
+    }

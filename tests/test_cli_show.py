@@ -77,11 +77,19 @@ def test_show_json_in_si_with_the_closed_form(capsys):
     body = wheel - m_s * g / k_s
     assert data["bodies"]["wheel"]["static_deflection"] == pytest.approx(wheel, rel=1e-12)
     assert data["bodies"]["body"]["static_deflection"] == pytest.approx(body, rel=1e-12)
-    assert data["bodies"]["body"]["static_deflection"] < data["bodies"]["wheel"]["static_deflection"] < 0
+    assert (
+        data["bodies"]["body"]["static_deflection"]
+        < data["bodies"]["wheel"]["static_deflection"]
+        < 0
+    )
     elements = data["elements"]
     assert set(elements) == {"tyre", "suspension_spring", "suspension_damper"}
-    assert elements["tyre"]["kind"] == "spring" and elements["suspension_damper"]["kind"] == "damper"
-    assert elements["tyre"]["static_force"] == pytest.approx(-(m_u + m_s) * g, rel=1e-12)  # N, compression
+    assert (
+        elements["tyre"]["kind"] == "spring" and elements["suspension_damper"]["kind"] == "damper"
+    )
+    assert elements["tyre"]["static_force"] == pytest.approx(
+        -(m_u + m_s) * g, rel=1e-12
+    )  # N, compression
     assert elements["suspension_spring"]["static_force"] == pytest.approx(-m_s * g, rel=1e-12)
     assert elements["suspension_damper"]["static_force"] == 0.0
     assert elements["tyre"]["stiffness"] == 230e3  # N/m
@@ -157,7 +165,13 @@ def test_missing_file_exits_2(capsys, tmp_path):
 
 @pytest.mark.parametrize(
     "argv",
-    [["show", str(QUARTER_CAR), "--bogus"], ["show"], ["shw", str(QUARTER_CAR)], [], ["show", "--json"]],
+    [
+        ["show", str(QUARTER_CAR), "--bogus"],
+        ["show"],
+        ["shw", str(QUARTER_CAR)],
+        [],
+        ["show", "--json"],
+    ],
 )
 def test_bad_option_exits_2_with_one_line(capsys, argv):
     code, out, err = run(capsys, *argv)

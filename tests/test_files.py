@@ -63,7 +63,10 @@ def refuse(path: Path) -> lumped.ModelError:
     assert error.source == str(path)
     lines = str(error).splitlines()
     # A head line, then one line per problem, each naming the file.
-    assert lines[0] == f"{path}: {len(error.problems)} problem{'s' if len(error.problems) != 1 else ''}"
+    assert (
+        lines[0]
+        == f"{path}: {len(error.problems)} problem{'s' if len(error.problems) != 1 else ''}"
+    )
     assert len(lines) == 1 + len(error.problems)
     assert all(line.strip().startswith(f"{path}: ") for line in lines)
     assert error.lines() == [f"{path}: {p}" for p in error.problems]
@@ -288,13 +291,15 @@ def test_misspelt_key_is_an_error_that_suggests_the_right_one(tmp_path):
 
 
 def test_unknown_top_level_key_and_table(tmp_path):
-    error = refuse(write(tmp_path, "gravityy = 9.8\n" + BASE + '\n[bodys.x]\nmass = 1\n'))
+    error = refuse(write(tmp_path, "gravityy = 9.8\n" + BASE + "\n[bodys.x]\nmass = 1\n"))
     assert "'gravity'" in find(error, "", "gravityy")[0].message
     assert "'bodies'" in find(error, "", "bodys")[0].message
 
 
 def test_duplicate_id_across_tables(tmp_path):
-    text = BASE + '\n[bodies.x]\nmass = 1\n\n[springs.x]\nbetween = ["mass_1", "x"]\nstiffness = 5\n'
+    text = (
+        BASE + '\n[bodies.x]\nmass = 1\n\n[springs.x]\nbetween = ["mass_1", "x"]\nstiffness = 5\n'
+    )
     error = refuse(write(tmp_path, text))
     (problem,) = find(error, "springs.x", "id")
     assert "twice" in problem.message and "bodies" in problem.message
@@ -302,7 +307,10 @@ def test_duplicate_id_across_tables(tmp_path):
 
 @pytest.mark.parametrize("bad_id", ["2wheel", "wheel hub", "_hidden", "-x", "é"])
 def test_malformed_id(tmp_path, bad_id):
-    text = BASE + f'\n[bodies."{bad_id}"]\nmass = 1\n\n[springs.hub]\nbetween = ["mass_1", "{bad_id}"]\nstiffness = 5\n'
+    text = (
+        BASE
+        + f'\n[bodies."{bad_id}"]\nmass = 1\n\n[springs.hub]\nbetween = ["mass_1", "{bad_id}"]\nstiffness = 5\n'
+    )
     error = refuse(write(tmp_path, text))
     (problem,) = find(error, f"bodies.{bad_id}", "id")
     assert "letter" in problem.message
@@ -335,11 +343,21 @@ def test_between_not_two_ids(tmp_path, between):
         ('mass = "10 kg"', 'mass = "1e400 kg"', "bodies.mass_1", "mass"),
         ('stiffness = "1 kN/m"', "stiffness = inf", "springs.spring_1", "stiffness"),
         ('coefficient = "20 N*s/m"', "coefficient = +inf", "dampers.damper_1", "coefficient"),
-        ('coefficient = "20 N*s/m"', "curve = [[-1, -20], [0, nan], [1, 20]]", "dampers.damper_1", "curve[1][1]"),
-        ('coefficient = "20 N*s/m"', 'curve = [[-1, -20], [0, 0], ["inf m/s", 20]]', "dampers.damper_1", "curve[2]"),
+        (
+            'coefficient = "20 N*s/m"',
+            "curve = [[-1, -20], [0, nan], [1, 20]]",
+            "dampers.damper_1",
+            "curve[1][1]",
+        ),
+        (
+            'coefficient = "20 N*s/m"',
+            'curve = [[-1, -20], [0, 0], ["inf m/s", 20]]',
+            "dampers.damper_1",
+            "curve[2]",
+        ),
         ('coefficient = "20 N*s/m"', "curve = nan", "dampers.damper_1", "curve"),
         ('name = "Test rig"', 'name = "Test rig"\ngravity = nan', "", "gravity"),
-        ('[bodies.mass_1]', '[run]\ndt = inf\n\n[bodies.mass_1]', "run", "dt"),
+        ("[bodies.mass_1]", "[run]\ndt = inf\n\n[bodies.mass_1]", "run", "dt"),
         ('mass = "10 kg"', 'mass = "10 kg"\nlabel = nan', "bodies.mass_1", "label"),
         ('mass = "10 kg"', 'mass = "10 kg"\nunknown = [1, inf]', "bodies.mass_1", "unknown[1]"),
     ],
@@ -362,10 +380,28 @@ def test_non_finite_input_parameter(tmp_path):
 @pytest.mark.parametrize(
     ("old", "new", "item", "field", "kind"),
     [
-        ('stiffness = "1 kN/m"', 'stiffness = "3 kg"', "springs.spring_1", "stiffness", "stiffness"),
+        (
+            'stiffness = "1 kN/m"',
+            'stiffness = "3 kg"',
+            "springs.spring_1",
+            "stiffness",
+            "stiffness",
+        ),
         ('mass = "10 kg"', 'mass = "10 N"', "bodies.mass_1", "mass", "mass"),
-        ('coefficient = "20 N*s/m"', 'coefficient = "20 N/m"', "dampers.damper_1", "coefficient", "damping"),
-        ('coefficient = "20 N*s/m"', 'coefficient = "20 kg"', "dampers.damper_1", "coefficient", "damping"),
+        (
+            'coefficient = "20 N*s/m"',
+            'coefficient = "20 N/m"',
+            "dampers.damper_1",
+            "coefficient",
+            "damping",
+        ),
+        (
+            'coefficient = "20 N*s/m"',
+            'coefficient = "20 kg"',
+            "dampers.damper_1",
+            "coefficient",
+            "damping",
+        ),
     ],
 )
 def test_unit_of_the_wrong_kind(tmp_path, old, new, item, field, kind):
@@ -434,12 +470,17 @@ def test_system_with_no_support_is_refused_unless_floating(tmp_path):
     (problem,) = error.problems
     assert "floating" in problem.message and "rigid-body mode" in problem.message
     assert "floating = true" in problem.message
-    system = lumped.load(write(tmp_path, FLOATING.replace('name =', 'floating = true\nname ='), "f.toml"))
+    system = lumped.load(
+        write(tmp_path, FLOATING.replace("name =", "floating = true\nname ="), "f.toml")
+    )
     assert system.floating and set(system.bodies) == {"left", "right"}
 
 
 def test_body_held_only_by_a_damper_has_a_rigid_body_mode(tmp_path):
-    text = BASE + '\n[bodies.hanger]\nmass = 1\n\n[dampers.dashpot]\nbetween = ["mass_1", "hanger"]\ncoefficient = 5\n'
+    text = (
+        BASE
+        + '\n[bodies.hanger]\nmass = 1\n\n[dampers.dashpot]\nbetween = ["mass_1", "hanger"]\ncoefficient = 5\n'
+    )
     error = refuse(write(tmp_path, text))
     (problem,) = find(error, "bodies.hanger", "")
     assert "rigid-body mode" in problem.message and "floating = true" in problem.message
@@ -464,7 +505,14 @@ def test_bad_damper_curve(tmp_path, curve, words):
 
 
 def test_damper_given_two_ways(tmp_path):
-    error = refuse(write(tmp_path, BASE.replace('coefficient = "20 N*s/m"', 'coefficient = 20\nrebound = 30\ncompression = 10')))
+    error = refuse(
+        write(
+            tmp_path,
+            BASE.replace(
+                'coefficient = "20 N*s/m"', "coefficient = 20\nrebound = 30\ncompression = 10"
+            ),
+        )
+    )
     assert "exactly one" in find(error, "dampers.damper_1", "coefficient")[0].message
 
 
@@ -728,8 +776,12 @@ def test_regression_damper_without_any_coefficient_is_a_model_error():
         "s", {"m": lumped.Body("m", 1.0)}, {"g": lumped.Support("g")},
         springs={"k": lumped.Spring("k", ("g", "m"), 1.0)}, dampers={"d": damper},
     )  # fmt: skip
-    assert [(p.item, p.field) for p in lumped.check_system(system)] == [("dampers.d", "coefficient")]
-    error = pytest.raises(lumped.ModelError, lumped.loads, BASE + '\n[dampers.d2]\nbetween = ["ground", "mass_1"]\n').value
+    assert [(p.item, p.field) for p in lumped.check_system(system)] == [
+        ("dampers.d", "coefficient")
+    ]
+    error = pytest.raises(
+        lumped.ModelError, lumped.loads, BASE + '\n[dampers.d2]\nbetween = ["ground", "mass_1"]\n'
+    ).value
     assert [(p.item, p.field) for p in error.problems] == [("dampers.d2", "coefficient")]
     only_rebound = BASE.replace('coefficient = "20 N*s/m"', "rebound = 20")
     error = pytest.raises(lumped.ModelError, lumped.loads, only_rebound).value
@@ -763,7 +815,9 @@ def test_regression_power_towers_in_quantities_are_refused_at_once(text):
     # "9**9**9 s" (a number of 370 million digits) hung the reader.
     with pytest.raises(lumped.units.QuantityError):
         lumped.units.parse_quantity(text, "time")
-    error = pytest.raises(lumped.ModelError, lumped.loads, BASE.replace('"1 kN/m"', f'"{text}"')).value
+    error = pytest.raises(
+        lumped.ModelError, lumped.loads, BASE.replace('"1 kN/m"', f'"{text}"')
+    ).value
     assert [(p.item, p.field) for p in error.problems] == [("springs.spring_1", "stiffness")]
 
 
@@ -774,7 +828,9 @@ def test_regression_integer_literals_still_read_exactly():
     assert lumped.units.parse_quantity("1e-3 s", "time") == 1e-3
     assert lumped.units.parse_quantity("2.5E+3 N", "force") == 2500.0
     assert lumped.units.parse_quantity("3 m/s**2", "acceleration") == 3.0
-    assert lumped.units.parse_quantity("123456789012345678901 kg", "mass") == float(123456789012345678901)
+    assert lumped.units.parse_quantity("123456789012345678901 kg", "mass") == float(
+        123456789012345678901
+    )
 
 
 def test_regression_rpm_is_revolutions_not_radians():
@@ -786,7 +842,9 @@ def test_regression_rpm_is_revolutions_not_radians():
 def test_regression_unsorted_curve_is_reported_once():
     # A curve out of velocity order was also said to give non-zero force at zero
     # velocity (interpolation of the unsorted points), though (0, 0) was given.
-    text = BASE.replace('coefficient = "20 N*s/m"', "curve = [[-1, -50], [0.5, 30], [0, 0], [1, 60]]")
+    text = BASE.replace(
+        'coefficient = "20 N*s/m"', "curve = [[-1, -50], [0.5, 30], [0, 0], [1, 60]]"
+    )
     error = pytest.raises(lumped.ModelError, lumped.loads, text).value
     assert [(p.item, p.field) for p in error.problems] == [("dampers.damper_1", "curve")]
     assert "increase strictly" in error.problems[0].message
@@ -795,5 +853,9 @@ def test_regression_unsorted_curve_is_reported_once():
 def test_regression_a_field_the_reader_could_not_use_is_reported_once():
     # A spring without `between` also drew "names '?'" (twice) and "joins '?' to
     # itself" from the checks, which saw the placeholder.
-    error = pytest.raises(lumped.ModelError, lumped.loads, BASE + "\n[springs.k2]\nstiffness = 5\n").value
-    assert [(p.item, p.field, p.message) for p in error.problems] == [("springs.k2", "between", "missing")]
+    error = pytest.raises(
+        lumped.ModelError, lumped.loads, BASE + "\n[springs.k2]\nstiffness = 5\n"
+    ).value
+    assert [(p.item, p.field, p.message) for p in error.problems] == [
+        ("springs.k2", "between", "missing")
+    ]

@@ -46,7 +46,9 @@ def test_single_body_sinks_mg_over_k(mass, k):
 
 
 def test_gravity_of_the_file_is_used():
-    text = lumped.dumps(single(4.0, 2e3)).replace('name = "single body"', 'name = "on the Moon"\ngravity = "1.62 m/s**2"')
+    text = lumped.dumps(single(4.0, 2e3)).replace(
+        'name = "single body"', 'name = "on the Moon"\ngravity = "1.62 m/s**2"'
+    )
     system = lumped.loads(text)  # invented: a rig on the Moon
     assert system.gravity == pytest.approx(1.62)
     state = lumped.static_equilibrium(lumped.assemble(system))
@@ -91,7 +93,10 @@ def test_springs_in_parallel():
         name="parallel",
         bodies={"mass": Body("mass", mass)},
         supports={"ground": Support("ground")},
-        springs={"k1": Spring("k1", ("ground", "mass"), k1), "k2": Spring("k2", ("ground", "mass"), k2)},
+        springs={
+            "k1": Spring("k1", ("ground", "mass"), k1),
+            "k2": Spring("k2", ("ground", "mass"), k2),
+        },
     )
     state = solve(system)
     assert state.deflection_of("mass") == pytest.approx(-mass * G / (k1 + k2), rel=1e-12)
@@ -189,7 +194,9 @@ def test_compression_only_spring_that_would_have_to_pull():
         name="lamp on a push-only spring",
         bodies={"lamp": Body("lamp", 3.0)},
         supports={"ceiling": Support("ceiling")},
-        springs={"push_spring": Spring("push_spring", ("lamp", "ceiling"), 600.0, acts="compression")},
+        springs={
+            "push_spring": Spring("push_spring", ("lamp", "ceiling"), 600.0, acts="compression")
+        },
     )
     assert lumped.check_system(system) == []
     with pytest.raises(lumped.StaticError) as info:
@@ -244,7 +251,9 @@ def test_floating_system_is_not_deformed_by_gravity():
     )
     state = solve(system)
     assert state.force_in("link") == pytest.approx(0.0, abs=1e-9)
-    assert state.element_deflection[state.element_ids.index("link")] == pytest.approx(0.0, abs=1e-12)
+    assert state.element_deflection[state.element_ids.index("link")] == pytest.approx(
+        0.0, abs=1e-12
+    )
     assert state.deflection_of("left") == pytest.approx(state.deflection_of("right"), abs=1e-12)
     assert all(np.isfinite(state.displacement))
 
