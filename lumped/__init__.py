@@ -46,14 +46,15 @@ from lumped.model import (
 from lumped.report import SystemSummary, node_levels, summarize
 from lumped.static import StaticError, StaticState, static_equilibrium
 from lumped.steppers import STEPPERS, Stepper, get_stepper
+from lumped.units import display, parse_quantity
 
 __all__ = [
     "Body", "BumpInput", "DEMO_DIR", "Damper", "Force", "HarmonicInput", "Inerter",
     "LumpedError", "Matrices", "ModelError", "NonlinearElements", "Problem", "RoadInput",
     "RunSettings", "STEPPERS", "Spring", "StateSpace", "StaticError", "StaticState",
     "StepInput", "Stepper", "Support", "SweepInput", "System", "SystemSummary", "TableInput",
-    "assemble", "check_system", "demo_path", "demo_systems", "dump_path", "dumps",
-    "get_stepper", "load", "loads", "node_levels", "save", "state_space",
+    "assemble", "check_system", "demo_path", "demo_systems", "display", "dump_path", "dumps",
+    "get_stepper", "load", "loads", "node_levels", "parse_quantity", "save", "state_space",
     "static_equilibrium", "summarize", "uniform_chain",
 ]  # fmt: skip
 __version__ = "0.1.0"

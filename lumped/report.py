@@ -91,7 +91,13 @@ def summarize(system: System) -> SystemSummary:
         for b in system.bodies.values()
     ]
     supports = [
-        {"id": s.id, "label": s.label, "motion": s.motion, "delay": s.delay}
+        {
+            "id": s.id,
+            "label": s.label,
+            "motion": s.motion,
+            "motion_kind": system.inputs[s.motion].kind if s.motion in system.inputs else None,
+            "delay": s.delay,
+        }
         for s in system.supports.values()
     ]
     elements = []
@@ -128,20 +134,21 @@ def summarize(system: System) -> SystemSummary:
 
 
 def node_levels(system: System) -> dict[str, int]:
-    """Each node's level for drawing: supports at 0, each body one above the highest of
-    the lower nodes it hangs on (the first node of each ``between``), so that bodies
-    stack by height above the supports. Cycles fall back to path distance."""
+    """Each node's level for drawing: every node one above the highest of the lower
+    nodes it hangs on (the first node of each ``between``), nodes that hang on nothing
+    at 0, so that bodies stack by height above the supports and a body hanging below a
+    support is drawn below it. Cycles of "lower" links fall back to path distance."""
     upward = nx.DiGraph()
     upward.add_nodes_from([*system.supports, *system.bodies])
     upward.add_edges_from(
-        e.between for e in system.elements.values() if e.between[1] in system.bodies and e.between[0] in upward
+        e.between for e in system.elements.values() if e.between[0] in upward and e.between[1] in upward
     )
     upward.remove_edges_from(nx.selfloop_edges(upward))
     if nx.is_directed_acyclic_graph(upward):
         level: dict[str, int] = {}
         for node in nx.topological_sort(upward):
             lower = list(upward.predecessors(node))
-            level[node] = 1 + max(level[n] for n in lower) if lower else (0 if node in system.supports else 1)
+            level[node] = 1 + max(level[n] for n in lower) if lower else 0
         return level
     distance = nx.multi_source_dijkstra_path_length(system.graph, list(system.supports) or list(system.bodies)[:1])
     return {n: int(distance.get(n, 0)) for n in upward}

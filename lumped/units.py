@@ -180,11 +180,39 @@ def format_quantity(si_value: float, dimension: str, unit: str | None = None) ->
     return si_value
 
 
+#: Units display() chooses from, smallest first, per dimension.
+DISPLAY_LADDERS = {
+    "mass": ("g", "kg", "t"),
+    "length": ("mm", "m", "km"),
+    "force": ("N", "kN", "MN"),
+    "stiffness": ("N/m", "kN/m", "MN/m"),
+    "damping": ("N*s/m", "kN*s/m", "MN*s/m"),
+    "time": ("ms", "s"),
+}
+
+
+@lru_cache(maxsize=256)
+def _factor(unit: str, dimension: str) -> float:
+    """SI value of one ``unit`` of ``dimension``."""
+    return float(_registry().Quantity(1.0, unit).to(DIMENSIONS[dimension].si_unit).magnitude)
+
+
 def display(si_value: float, dimension: str, unit: str | None = None, digits: int = 4) -> str:
-    """``si_value`` as text for people, in ``unit`` or the dimension's display unit
-    (``display(22000, "stiffness")`` → ``"22 kN/m"``)."""
-    unit = unit if unit is not None else DIMENSIONS[dimension].display_unit
+    """``si_value`` as text for people (``display(22000, "stiffness")`` → ``"22 kN/m"``).
+
+    With no ``unit``, the largest unit of the dimension's ladder that keeps the number
+    at or above 1 is used (12 000 kg → "12 t", 4e7 N/m → "40 MN/m", 0.06 m → "60 mm").
+    """
+    if unit is None:
+        ladder = DISPLAY_LADDERS.get(dimension)
+        if ladder is None:
+            unit = DIMENSIONS[dimension].display_unit
+        else:
+            unit = ladder[0]
+            for candidate in ladder[1:]:
+                if abs(si_value) >= _factor(candidate, dimension):
+                    unit = candidate
     if not unit:
         return f"{si_value:.{digits}g}"
-    factor = _registry().Quantity(1.0, unit).to(DIMENSIONS[dimension].si_unit).magnitude
-    return f"{si_value / factor:.{digits}g} {unit.replace('**2', '²').replace('*', '·')}"
+    number = si_value / _factor(unit, dimension)
+    return f"{number:.{digits}g} {unit.replace('**2', '²').replace('*', '·')}"
