@@ -11,7 +11,6 @@ Exit 0 done, 2 bad file or option (one line per problem on stderr).
 
 from __future__ import annotations
 
-import argparse
 import csv
 import json
 import math
@@ -34,20 +33,6 @@ CAUTION = (
 )
 
 
-def _frequency(text: str) -> float:
-    """A frequency option: a plain number in Hz, or a quantity with units ("2 kHz")."""
-    try:
-        value = float(text)
-    except ValueError:
-        return _quantity_arg("frequency")(text)
-    if not math.isfinite(value):
-        raise argparse.ArgumentTypeError(f"{text!r} is not a finite frequency")
-    return value
-
-
-_frequency.__name__ = "frequency"
-
-
 def add_commands(commands) -> None:
     """Add ``freq`` to the argparse sub-parsers object ``commands`` (made with
     ``parser_class=_Parser`` by :mod:`lumped.cli`)."""
@@ -66,9 +51,9 @@ def add_commands(commands) -> None:
     freq.add_argument("--to", dest="target", required=True, metavar="ID", help="output: a body or an element")
     freq.add_argument("--quantity", choices=QUANTITIES, default="displacement",
                       help="output quantity (default displacement; of an element: its deflection)")
-    freq.add_argument("--min", dest="f_min", type=_frequency, metavar="F",
+    freq.add_argument("--min", dest="f_min", type=_quantity_arg("frequency"), metavar="F",
                       help="lowest frequency, Hz or with units (default a decade below the lowest mode)")
-    freq.add_argument("--max", dest="f_max", type=_frequency, metavar="F",
+    freq.add_argument("--max", dest="f_max", type=_quantity_arg("frequency"), metavar="F",
                       help="highest frequency (default a decade above the highest mode)")
     freq.add_argument("--points-per-decade", type=int, default=POINTS_PER_DECADE, metavar="N",
                       help=f"density of the log-spaced grid (default {POINTS_PER_DECADE}; refined near each mode)")
@@ -183,7 +168,10 @@ def _value(row) -> str:
     if not math.isfinite(row.value):
         return str(row.value)
     if row.unit == "1":
-        return f"{100 * row.value:.3g} %" if row.key.endswith("_share") else f"{row.value:.4g}"
+        if row.key.endswith("_share"):
+            percent = 100 * row.value
+            return "< 0.0001 %" if 0 < percent < 1e-4 else f"{percent:.3g} %"
+        return f"{row.value:.4g}"
     return f"{row.value:.4g} {row.unit.replace('^2', '²')}"
 
 

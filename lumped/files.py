@@ -122,7 +122,7 @@ def load(path: str | os.PathLike) -> System:
         raise ModelError([Problem("", "", f"cannot open the file ({exc.strerror})")], source) from None
     if size > MAX_FILE_BYTES:
         raise ModelError(
-            [Problem("", "", f"file is {size / 1e6:.1f} MB; files above {MAX_FILE_BYTES / 2**20:.0f} MB are refused")],
+            [Problem("", "", f"file is {size / 2**20:.1f} MB; files above {MAX_FILE_BYTES / 2**20:.0f} MB are refused")],
             source,
         )
     try:

@@ -17,8 +17,11 @@ Responses are per unit input: m/m (transmissibility), m/N, (m/s²)/m, N/m, N/N �
 
 Solving: up to :data:`DENSE_FREQUENCY_LIMIT` bodies one batched
 ``numpy.linalg.solve`` on a stacked (F, n, n) array of Z(ω) (in chunks that bound the
-memory); above, a sparse LU of Z(ω) per frequency (``scipy.sparse.linalg.splu``),
-which costs O(n) per frequency on chain-like systems.
+memory); above, one sparse solve per frequency on the shared sparsity pattern of K,
+C and M — LAPACK's banded solver after a reverse Cuthill–McKee ordering when the band
+is narrow (chains: O(n) per frequency), SuperLU (``scipy.sparse.linalg.splu``) otherwise.
+Systems beyond :data:`~lumped.assemble.DENSE_LIMIT` bodies have their grid refined
+around their lowest modes and their stiffest mode only.
 
 The default grid is log-spaced from a decade below the lowest mode to a decade above
 the highest, with points added densely within a few half-power bandwidths of each
@@ -34,8 +37,8 @@ from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
-import scipy.sparse as sp
 import scipy.linalg as la
+import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 from scipy.optimize import minimize_scalar
 
@@ -77,6 +80,8 @@ PEAK_TOLERANCE = 1e-6
 BATCH_BYTES = 64 * 2**20
 #: Sparse systems whose reordered half-bandwidth is at most this use the banded solver.
 BANDED_LIMIT = 64
+#: Largest result a frequency response keeps (bytes); beyond, name fewer outputs.
+MAX_RESULT_BYTES = 2 * 2**30
 #: Lowest modes found for the grid of a system beyond DENSE_LIMIT bodies.
 LARGE_SYSTEM_MODES = 20
 
@@ -86,6 +91,7 @@ BODY_QUANTITIES = {"displacement": "m", "velocity": "m/s", "acceleration": "m/s^
 ELEMENT_QUANTITIES = {"force": "N", "deflection": "m", "displacement": "m",
                       "velocity": "m/s", "acceleration": "m/s^2"}  # fmt: skip
 INPUT_UNITS = {"support": "m", "force": "N"}
+_KEPT = "this response (keep it with outputs=)"
 
 
 class FrequencyError(LumpedError):
@@ -229,7 +235,7 @@ class FrequencyResponse:
     def response(self, input_id: str, output_id: str, quantity: str = "displacement") -> np.ndarray:
         """H(f) of ``output_id``'s ``quantity`` to ``input_id`` on the grid (complex)."""
         j = self._input(input_id)
-        kind, quantity = _output_kind(output_id, quantity, self.body_ids, self.element_ids)
+        kind, quantity = _output_kind(output_id, quantity, self.body_ids, self.element_ids, _KEPT)
         return self._column(kind, output_id, quantity, j, self.frequency, None)
 
     def _column(self, kind, output_id, quantity, j, frequency, arrays):
@@ -249,7 +255,7 @@ class FrequencyResponse:
         """The :class:`Transfer` of one input → output pair, with its resonance peaks
         refined off the grid (``peaks=False`` skips that)."""
         j = self._input(input_id)
-        kind, quantity = _output_kind(output_id, quantity, self.body_ids, self.element_ids)
+        kind, quantity = _output_kind(output_id, quantity, self.body_ids, self.element_ids, _KEPT)
         unit_out = BODY_QUANTITIES[quantity] if kind == "body" else ELEMENT_QUANTITIES[quantity]
         unit_in = INPUT_UNITS[self.input_kinds[j]]
         unit = f"{unit_out}/{unit_in}" if "/" not in unit_out else f"({unit_out})/{unit_in}"
@@ -288,7 +294,7 @@ def _derivative(x: np.ndarray, w: np.ndarray, quantity: str) -> np.ndarray:
     return -(w**2) * x
 
 
-def _output_kind(output_id, quantity, body_ids, element_ids) -> tuple[str, str]:
+def _output_kind(output_id, quantity, body_ids, element_ids, where: str = "the system") -> tuple[str, str]:
     if output_id in body_ids:
         if quantity not in BODY_QUANTITIES:
             raise FrequencyError(
@@ -302,7 +308,7 @@ def _output_kind(output_id, quantity, body_ids, element_ids) -> tuple[str, str]:
                 f"velocity, acceleration, not {quantity!r}"
             )
         return "element", "deflection" if quantity == "displacement" else quantity
-    raise FrequencyError(f"output {output_id!r} is not a body or element of this response")
+    raise FrequencyError(f"output {output_id!r} is not a body or element of {where}")
 
 
 # --------------------------------------------------------------------------- solving
@@ -688,6 +694,12 @@ def frequency_response(
         if f_min is not None or f_max is not None:
             raise FrequencyError("frequencies: give either a list of frequencies or a range, not both")
         grid = _check_frequencies(frequencies)
+    size = 16 * len(grid) * (len(bodies) + 2 * len(elements)) * len(items)
+    if size > MAX_RESULT_BYTES:
+        raise FrequencyError(
+            f"outputs: keeping {len(bodies)} bodies and {len(elements)} elements at {len(grid)} "
+            f"frequencies for {len(items)} inputs needs {size / 2**30:.1f} GiB; name the outputs you need"
+        )
     problem = _Problem(matrices, items, bodies, elements, dense)
     displacement, deflection, force = problem.solve(grid)
     fn, zeta = modes if modes is not None else (np.zeros(0), np.zeros(0))

@@ -287,7 +287,7 @@ def run_figures(
     static = static_equilibrium(matrices)
     rows = static_figures(system, matrices, chosen_b, static)
 
-    rate, uniform = _uniform_rate(time)
+    rate, uniform = _uniform_rate(time) if chosen_b else (math.nan, len(time))
     window = time >= start
     weights = _window_weights(time, window)
     span = f"over {time[window][0]:g}–{time[-1]:g} s"
@@ -477,7 +477,7 @@ def road_figures(
         g = RoadSignal(item.road_class, item.speed, item.seed).temporal_psd(grid)
         weight2 = np.abs(weighting_response(w, grid)) ** 2
 
-        def combined(array, index):
+        def combined(array, index, phase=phase):
             return np.sum(array[:, index, :] * phase, axis=1)
 
         for b in chosen_b:

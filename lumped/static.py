@@ -11,6 +11,7 @@ the frame that falls with it, where uniform gravity deforms nothing.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 import scipy.sparse as sp
@@ -50,10 +51,18 @@ class StaticState:
     iterations: int
 
     def deflection_of(self, body_id: str) -> float:
-        return float(self.displacement[self.body_ids.index(body_id)])
+        """Static deflection of ``body_id``, m."""
+        return float(self.displacement[_positions(self.body_ids)[body_id]])
 
     def force_in(self, element_id: str) -> float:
-        return float(self.element_force[self.element_ids.index(element_id)])
+        """Static force in ``element_id``, N (tension positive)."""
+        return float(self.element_force[_positions(self.element_ids)[element_id]])
+
+
+@lru_cache(maxsize=8)
+def _positions(ids: tuple[str, ...]) -> dict[str, int]:
+    """Index of each id in an id tuple (cached: summaries ask for every element)."""
+    return {name: i for i, name in enumerate(ids)}
 
 
 def static_equilibrium(matrices: Matrices) -> StaticState:

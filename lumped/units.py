@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import math
 import re
+import re
 from dataclasses import dataclass
 from functools import lru_cache
 
@@ -18,6 +19,16 @@ __all__ = ["Dimension", "DIMENSIONS", "QuantityError", "parse_quantity", "format
 MAX_QUANTITY_TEXT = 120
 #: An integer literal in quantity text: not part of a name, a decimal or an exponent.
 _INTEGER_LITERAL = re.compile(r"(?<![\w.])(?<![eE][+-])(\d[\d_]*)(?![\w.])")
+
+
+#: One number, then optionally a unit that starts with a letter and holds no further
+#: bare numbers or sums: "22 kN/m", "1.6e3 N*s/m", "9.81 m/s**2", "-40 mm". Rejects
+#: what pint would read too loosely ("2 3 kg" as 6 kg, "kg" as 1 kg, "2 kg + 3 kg").
+_QUANTITY_SHAPE = re.compile(
+    r"[-+]?((\d[\d_]*\.?\d*|\.\d+)([eE][-+]?\d+)?|[iI]nf(inity)?|[nN]a[nN])"
+    r"(\s*[A-Za-z_%°µΩ][A-Za-z0-9_%°µΩ·*/^()]*(\s*[*/·]\s*[A-Za-z_%°µΩ(][A-Za-z0-9_%°µΩ·*/^()]*)*"
+    r"(\*\*-?\d+)?)?"
+)
 
 
 class QuantityError(ValueError):
@@ -139,6 +150,8 @@ def parse_quantity(value: object, dimension: str) -> float:
             raise QuantityError("empty quantity")
         if len(text) > MAX_QUANTITY_TEXT:
             raise QuantityError(f"quantity text longer than {MAX_QUANTITY_TEXT} characters")
+        if not _QUANTITY_SHAPE.fullmatch(text):
+            raise QuantityError(f"{text!r} is not one number followed by a unit (as \"22 kN/m\")")
         return _parse_text(text, dimension)
     raise QuantityError(f"expected a {dimension} as a number or a string with units")
 
@@ -171,7 +184,9 @@ def format_quantity(si_value: float, dimension: str, unit: str | None = None) ->
     except Exception:
         return si_value
     for magnitude in (si_value / factor, round(si_value / factor, 12)):
-        text = f"{magnitude!r} {unit}"
+        number = repr(magnitude)
+        number = number[:-2] if number.endswith(".0") else number  # "230 kN/m", not "230.0"
+        text = f"{number} {unit}"
         try:
             if parse_quantity(text, dimension) == si_value:
                 return text

@@ -77,8 +77,9 @@ def find(error: lumped.ModelError, item: str, field: str):
     """The problems of ``error`` at ``item`` and ``field``; at least one must exist."""
     found = [p for p in error.problems if p.item == item and p.field == field]
     assert found, f"no problem at {item}.{field}; problems: {error.problems}"
+    where = ".".join(part for part in (item, field) if part)
     for p in found:
-        assert f"{item}.{field}" in str(p) if item and field else True
+        assert str(p).startswith(f"{where}: ")  # the line names the item and the field
     return found
 
 
@@ -613,6 +614,14 @@ def test_file_over_20_mb_is_refused_unread(tmp_path, monkeypatch):
     assert "20 MB" in problem.message
 
 
+def test_regression_file_size_and_limit_are_in_the_same_unit(tmp_path):
+    # A 21 MB file (2**20-byte megabytes, as the limit) was said to be "22.0 MB".
+    path = tmp_path / "huge.toml"
+    with path.open("wb") as handle:
+        handle.truncate(21 * 2**20)
+    assert "file is 21.0 MB; files above 20 MB" in refuse(path).problems[0].message
+
+
 def test_file_just_under_the_limit_is_read(tmp_path):
     # 20 MB exactly is allowed; the file is then read (and here refused as not TOML).
     path = tmp_path / "big.toml"
@@ -824,7 +833,9 @@ def test_regression_power_towers_in_quantities_are_refused_at_once(text):
 def test_regression_integer_literals_still_read_exactly():
     # After integer literals became floats for pint, exact values stay exact.
     assert lumped.units.parse_quantity("1_000 kg", "mass") == 1000.0
-    assert lumped.units.parse_quantity("2**10 N", "force") == 1024.0
+    # A number expression is not "one number followed by a unit": refused, not evaluated.
+    with pytest.raises(lumped.units.QuantityError, match="one number followed by a unit"):
+        lumped.units.parse_quantity("2**10 N", "force")
     assert lumped.units.parse_quantity("1e-3 s", "time") == 1e-3
     assert lumped.units.parse_quantity("2.5E+3 N", "force") == 2500.0
     assert lumped.units.parse_quantity("3 m/s**2", "acceleration") == 3.0
@@ -859,3 +870,18 @@ def test_regression_a_field_the_reader_could_not_use_is_reported_once():
     assert [(p.item, p.field, p.message) for p in error.problems] == [
         ("springs.k2", "between", "missing")
     ]
+
+
+@pytest.mark.parametrize("text", ["2 3 kg", "kg", "2 kg + 3 kg", "1.5e-3.5 m"])
+def test_regression_loose_quantity_text_is_refused(text):
+    # pint alone read "2 3 kg" as 6 kg, "kg" as 1 kg and "2 kg + 3 kg" as 5 kg: a typo
+    # in a shared file must not pass silently.
+    with pytest.raises(lumped.units.QuantityError, match="one number followed by a unit"):
+        lumped.units.parse_quantity(text, "mass" if "kg" in text else "length")
+
+
+def test_saved_quantities_keep_their_short_form(tmp_path):
+    # A saved file is reviewed in diffs: "230 kN/m" stays "230 kN/m", not "230.0 kN/m".
+    system = lumped.load(lumped.demo_path("quarter_car"))
+    text = lumped.dumps(system)
+    assert 'stiffness = "230 kN/m"' in text and 'mass = "380 kg"' in text

@@ -27,8 +27,24 @@ import pytest
 import scipy.linalg as la
 
 import lumped
-from lumped import Body, Damper, Force, HarmonicInput, Inerter, Spring, Support, System, uniform_chain
-from lumped.frequency import FrequencyError, frequency_grid, frequency_response, transfer, transmissibility
+from lumped import (
+    Body,
+    Damper,
+    Force,
+    HarmonicInput,
+    Inerter,
+    Spring,
+    Support,
+    System,
+    uniform_chain,
+)
+from lumped.frequency import (
+    FrequencyError,
+    frequency_grid,
+    frequency_response,
+    transfer,
+    transmissibility,
+)
 
 DEMOS = Path(__file__).resolve().parents[1] / "demo_systems"
 MASS, STIFFNESS = 100.0, 1.0e5  # kg, N/m
@@ -94,7 +110,7 @@ def test_force_steady_state_amplitude_and_phase(zeta):
     assert result.unit == "m/N"
 
 
-@pytest.mark.parametrize("zeta", [0.01, 0.05, 0.2, 0.5])
+@pytest.mark.parametrize("zeta", [0.01, 0.05, 0.2, 0.35])
 def test_force_peak_and_half_power_points(zeta):
     system = single_body(zeta)
     result = transfer(system, "push", "mass")

@@ -2,7 +2,7 @@
 either returns a System or raises ``lumped.ModelError`` — never another exception.
 
 Two sources of input: documents generated from the keys and value kinds of the file
-format (docs: shared SYSTEM_FILES.md, format version 1), written out with tomli-w, with
+format (the project's SYSTEM_FILES.md, format version 1), written out with tomli-w, with
 wrong types, unit strings of every kind, non-finite and huge numbers, missing and
 extra keys and random ``between`` lists; and the demo files' text with characters and
 lines deleted, duplicated or replaced. A system that loads must also write back to a
@@ -281,8 +281,11 @@ def merged(base: dict, extra: dict) -> dict:
     return out
 
 
-@settings(max_examples=1500, deadline=None, suppress_health_check=[HealthCheck.too_slow,
-          HealthCheck.function_scoped_fixture, HealthCheck.data_too_large])  # fmt: skip
+@settings(
+    max_examples=1500,
+    deadline=None,
+    suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large],
+)
 @given(document=documents, on_skeleton=st.booleans())
 def test_generated_documents_raise_only_model_error(document, on_skeleton, table_dir):
     if on_skeleton:
@@ -405,8 +408,7 @@ operations = st.lists(
 )  # fmt: skip
 
 
-@settings(max_examples=2500, deadline=None, suppress_health_check=[HealthCheck.too_slow,
-          HealthCheck.function_scoped_fixture])  # fmt: skip
+@settings(max_examples=2500, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(
     document=st.sampled_from(CORPUS),
     ops=operations,
