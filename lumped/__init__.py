@@ -25,6 +25,7 @@ from lumped.assemble import Matrices, NonlinearElements, StateSpace, assemble, s
 from lumped.demos import DEMO_DIR, demo_path, demo_systems
 from lumped.errors import LumpedError, ModelError, Problem
 from lumped.files import dump_path, dumps, load, loads, save
+from lumped.frequency import FrequencyResponse, frequency_response, transfer, transmissibility
 from lumped.model import (
     Body,
     BumpInput,
@@ -43,17 +44,20 @@ from lumped.model import (
     check_system,
     uniform_chain,
 )
+from lumped.metrics import Figure, road_figures, run_figures
 from lumped.report import SystemSummary, node_levels, summarize
 from lumped.static import StaticError, StaticState, static_equilibrium
 from lumped.steppers import STEPPERS, Stepper, get_stepper
 from lumped.units import display, parse_quantity
 
 __all__ = [
-    "Body", "BumpInput", "DEMO_DIR", "Damper", "Force", "HarmonicInput", "Inerter",
+    "Body", "BumpInput", "DEMO_DIR", "Damper", "Figure", "Force", "FrequencyResponse",
+    "HarmonicInput", "Inerter",
     "LumpedError", "Matrices", "ModelError", "NonlinearElements", "Problem", "RoadInput",
     "RunSettings", "STEPPERS", "Spring", "StateSpace", "StaticError", "StaticState",
     "StepInput", "Stepper", "Support", "SweepInput", "System", "SystemSummary", "TableInput",
-    "assemble", "check_system", "demo_path", "demo_systems", "display", "dump_path", "dumps",
+    "assemble", "check_system", "frequency_response", "road_figures", "run_figures",
+    "transfer", "transmissibility", "demo_path", "demo_systems", "display", "dump_path", "dumps",
     "get_stepper", "load", "loads", "node_levels", "parse_quantity", "save", "state_space",
     "static_equilibrium", "summarize", "uniform_chain",
 ]  # fmt: skip

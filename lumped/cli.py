@@ -50,6 +50,9 @@ def _parser() -> argparse.ArgumentParser:
     serve = commands.add_parser("serve", help="start the dashboard in the browser")
     serve.add_argument("--port", type=int, default=None, help="port (default from .streamlit/config.toml)")
     _add_analysis_commands(commands)
+    from lumped.cli_frequency import add_commands as _add_frequency_commands
+
+    _add_frequency_commands(commands)
     return parser
 
 
@@ -88,6 +91,8 @@ def _add_analysis_commands(commands) -> None:
                      help="also run at dt/2, dt/4, dt/8 and report the observed order")
     run.add_argument("--quiet", action="store_true", help="no progress bar")
     run.add_argument("--json", action="store_true", help="a summary of the run as JSON on stdout")
+    run.add_argument("--figures", action="store_true",
+                     help="ride, travel and load figures of the run (ISO 2631-1 weighted acceleration, VDV, ...)")
 
 
 def _quantity_arg(dimension: str):
@@ -248,10 +253,21 @@ def cmd_run(args) -> int:
         from lumped.convergence import convergence_study
 
         summary["convergence"] = convergence_study(system, result.stepper, result.dt, result.duration).to_json()
+    rows = None
+    if args.figures and not result.diverged:
+        from lumped.metrics import run_figures
+
+        rows = run_figures(system, result)
+        summary["figures"] = [row.to_json() for row in rows]
     if args.json:
         _print_json(summary)
     elif not args.quiet:
         print(format_run(summary))
+        if rows is not None:
+            from lumped.cli_frequency import format_figures
+
+            print()
+            print(format_figures(rows))
     if result.diverged:
         print(f"lumped run: {result.message}", file=sys.stderr)
         return EXIT_DIVERGED
@@ -286,7 +302,16 @@ class _ProgressBar:
         sys.stderr.flush()
 
 
-_COMMANDS = {"show": cmd_show, "serve": cmd_serve, "modes": cmd_modes, "check": cmd_check, "run": cmd_run}
+def cmd_freq(args) -> int:
+    from lumped.cli_frequency import cmd_freq as run_freq
+
+    return run_freq(args)
+
+
+_COMMANDS = {
+    "show": cmd_show, "serve": cmd_serve, "modes": cmd_modes, "check": cmd_check,
+    "run": cmd_run, "freq": cmd_freq,
+}  # fmt: skip
 
 
 # --------------------------------------------------------------------------- text output
