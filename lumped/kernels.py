@@ -75,12 +75,14 @@ def body_accelerations(q, v, U, Ud, Udd, FF, j, col, model, acc, rates):
     compiled function costs reference counting in the hot loop.
 
     ``model`` is the tuple built by the driver: ``(links, nonlinear, inerters,
-    table, minv, Minv, dense_mass, fbody, fscale)``. ``links = (a, b, k, c)`` are the
+    table, minv, Minv, dense_mass, fbody, fscale, scratch)`` (``scratch``: n floats of
+    work space — an allocation here, even in a branch not taken, costs more than the
+    whole loop of a small system). ``links = (a, b, k, c)`` are the
     linear springs and dampers merged per node pair — the tight loop that carries a
     large chain; ``nonlinear`` and ``inerters`` index the element ``table`` (see
     :func:`element_state`), evaluated one by one.
     """
-    links, nonlinear, inerters, table, minv, Minv, dense_mass, fbody, fscale = model
+    links, nonlinear, inerters, table, minv, Minv, dense_mass, fbody, fscale, scratch = model
     la, lb, lk, lc = links
     ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf = table
     n = q.shape[0]
@@ -155,7 +157,8 @@ def body_accelerations(q, v, U, Ud, Udd, FF, j, col, model, acc, rates):
         force[fbody[i]] += load
         work += load * v[fbody[i]]
     if dense_mass:
-        scratch = force.copy()
+        for i in range(n):
+            scratch[i] = force[i]
         for i in range(n):
             s = 0.0
             for r in range(n):

@@ -424,7 +424,7 @@ class _Engine:
         self.fscale = self.inputs.scales.astype(float)
         self.model = (self.table.links(), self.table.nonlinear(), self.table.inerters(),
                       self.table.args(), self.minv, self.Minv, self.dense_mass, self.fbody,
-                      self.fscale)  # fmt: skip
+                      self.fscale, np.zeros(matrices.n))  # fmt: skip
         n = matrices.n
         self.q = np.array([system.bodies[b].initial_displacement for b in matrices.body_ids], dtype=float)
         self.v = np.array([system.bodies[b].initial_velocity for b in matrices.body_ids], dtype=float)
