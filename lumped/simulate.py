@@ -482,13 +482,7 @@ class _Engine:
     # -- the loop
 
     def run(self, progress, cancel, verdict) -> RunResult:
-        stepper = self.stepper
-        if isinstance(stepper, RungeKuttaStepper) and stepper.explicit:
-            advance = self._rk_advance()
-        elif isinstance(stepper, SecondOrderStepper) and stepper.scheme == "symplectic-euler":
-            advance = self._symplectic_advance()
-        else:
-            advance = self._affine_advance()
+        self._choose_kernel()
         jumps = self.inputs.jumps(self.T)
         status, message = "completed", ""
         for time, s, size in [j for j in jumps if j[0] == 0.0]:
@@ -501,12 +495,11 @@ class _Engine:
             jump_step = math.floor(interior[0][0] / self.h + 1e-12) if interior else self.steps
             end = min(self.steps, k + CHUNK_STEPS, jump_step)
             if interior and jump_step <= k:
-                # The step containing the jump: two substeps either side of it.
                 t_jump, s, size = interior.pop(0)
-                result = self._split_step(advance, k, t_jump, s, size)
+                result = self._split_step(k, t_jump, s, size)
                 k += 1
             else:
-                result = advance(k, end - k)
+                result = self._advance(k, end - k)
                 k = end if result[0] == kernels.OK else k + result[1]
             if result[0] == kernels.DIVERGED:
                 status, message = "diverged", self._divergence_message(k, verdict)
@@ -525,12 +518,6 @@ class _Engine:
     def _time(self, k: int) -> float:
         return self.T if k >= self.steps else k * self.h
 
-    def _step_sizes(self, k0: int, count: int) -> np.ndarray:
-        h = np.full(count, self.h)
-        if k0 + count == self.steps:
-            h[-1] = self.T - (self.steps - 1) * self.h
-        return h
-
     def _store_current(self, k: int):
         u, ud, udd, F = self.inputs.at(np.array(self._time(k)))
         acc, rates = np.zeros(self.m.n), np.zeros(3)
@@ -546,69 +533,77 @@ class _Engine:
             array = getattr(self, name)
             setattr(self, name, np.concatenate([array, np.zeros_like(array[:8])]))
 
-    def _stage_inputs(self, k0: int, count: int, offsets: np.ndarray, h: np.ndarray):
-        t = (k0 + np.arange(count))[:, None] * self.h + offsets[None, :] * h[:, None]
-        if k0 + count == self.steps:
-            t[-1, offsets == 1.0] = self.T
-        return self.inputs.at(t, left=offsets[None, :] > 0)
+    # -- stepping: uniform pieces of steps, stage-input tables, one kernel per family
 
-    def _uniform_runs(self, k0: int, count: int):
-        """Split [k0, k0+count) so that a shortened last step runs on its own."""
-        if k0 + count == self.steps and self.T - (self.steps - 1) * self.h != self.h and count > 1:
-            return [(k0, count - 1), (k0 + count - 1, 1)]
-        return [(k0, count)]
+    def _pieces(self, k0: int, count: int, substep=None):
+        """``(first step, steps, step length, stage times)`` of the uniform pieces of
+        steps k0 … k0+count−1: a shortened last step runs on its own, and ``substep``
+        = (start time, length) runs step k0 as one part of a split step. Stage times
+        are computed from the step index, never accumulated; the run ends exactly at T."""
+        offsets = self.offsets
+        if substep is not None:
+            t0, h = substep
+            return [(k0, 1, h, t0 + offsets[None, :] * h)]
+        short = self.T - (self.steps - 1) * self.h
+        runs = [(k0, count)]
+        if k0 + count == self.steps and short != self.h and count > 1:
+            runs = [(k0, count - 1), (self.steps - 1, 1)]
+        pieces = []
+        for start, n in runs:
+            h = short if start == self.steps - 1 else self.h
+            times = (start + np.arange(n))[:, None] * self.h + offsets[None, :] * h
+            if start + n == self.steps:
+                times[-1, offsets == 1.0] = self.T
+            pieces.append((start, n, h, times))
+        return pieces
 
-    def _rk_advance(self):
-        a, b, c = self.stepper.tableau.arrays()
-        offsets = np.unique(np.concatenate([c, [1.0]]))
-        stage_col = np.searchsorted(offsets, c).astype(np.int64)
-        end_col = int(np.searchsorted(offsets, 1.0))
+    def _advance(self, k0: int, count: int, substep=None):
+        """Steps k0 … k0+count−1 (or one substep); returns (status, steps done)."""
+        for start, n, h, times in self._pieces(k0, count, substep):
+            tables = self.inputs.at(times, left=self.offsets[None, :] > 0)
+            status, done = self._kernel(start, n, h, tables)
+            if status != kernels.OK:
+                return status, start - k0 + done
+        return kernels.OK, count
 
-        def advance(k0, count, h=None):
-            for start, n in self._uniform_runs(k0, count) if h is None else [(k0, count)]:
-                step_h = self._step_sizes(start, n)[0] if h is None else h
-                U, Ud, Udd, F = self._stage_inputs(start, n, offsets, np.full(n, step_h), ) if h is None else self._inputs_from(offsets, step_h)
+    def _choose_kernel(self):
+        stepper = self.stepper
+        if isinstance(stepper, RungeKuttaStepper) and stepper.explicit:
+            a, b, c = stepper.tableau.arrays()
+            self.offsets = np.unique(np.concatenate([c, [1.0]]))
+            stage_col = np.searchsorted(self.offsets, c).astype(np.int64)
+            end_col = int(np.searchsorted(self.offsets, 1.0))
+
+            def kernel(start, n, h, tables):
                 status, done, self.count, self.n_ev = kernels.rk_chunk(
-                    a, b, stage_col, end_col, self.q, self.v, self.energy, step_h, start, n,
-                    U, Ud, Udd, F, self.model, self.every, self.out_q, self.out_v, self.out_a,
-                    self.out_e, self.out_step, self.count, self.watch_element, self.watch_kind,
-                    self.watch_prev, self.ev_step, self.ev_frac, self.ev_watch, self.ev_value,
-                    self.n_ev, self.q_limit,
+                    a, b, stage_col, end_col, self.q, self.v, self.energy, h, start, n,
+                    *tables, self.model, *self._output_buffers(), *self._event_buffers(), self.q_limit,
                 )  # fmt: skip
-                if status != kernels.OK:
-                    return status, start - k0 + done
-            return kernels.OK, count
+                return status, done
 
-        self._offsets = offsets
-        return advance
+        elif isinstance(stepper, SecondOrderStepper) and stepper.scheme == "symplectic-euler":
+            self.offsets = np.array([0.0, 1.0])
 
-    def _inputs_from(self, offsets, h):
-        """Stage inputs of one substep of length ``h`` from ``self._substep_start``."""
-        t = self._substep_start + offsets[None, :] * h
-        return self.inputs.at(t, left=offsets[None, :] > 0)
-
-    def _symplectic_advance(self):
-        offsets = np.array([0.0, 1.0])
-
-        def advance(k0, count, h=None):
-            for start, n in self._uniform_runs(k0, count) if h is None else [(k0, count)]:
-                step_h = self._step_sizes(start, n)[0] if h is None else h
-                U, Ud, Udd, F = self._stage_inputs(start, n, offsets, np.full(n, step_h)) if h is None else self._inputs_from(offsets, step_h)
+            def kernel(start, n, h, tables):
                 status, done, self.count, self.n_ev = kernels.symplectic_chunk(
-                    self.q, self.v, self.energy, step_h, start, n, U, Ud, Udd, F,
-                    self.model, self.every, self.out_q, self.out_v, self.out_a, self.out_e,
-                    self.out_step, self.count, self.watch_element, self.watch_kind,
-                    self.watch_prev, self.ev_step, self.ev_frac, self.ev_watch, self.ev_value,
-                    self.n_ev, self.q_limit,
+                    self.q, self.v, self.energy, h, start, n, *tables, self.model,
+                    *self._output_buffers(), *self._event_buffers(), self.q_limit,
                 )  # fmt: skip
-                if status != kernels.OK:
-                    return status, start - k0 + done
-            return kernels.OK, count
+                return status, done
 
-        self._offsets = offsets
-        return advance
+        else:
+            self.offsets = np.array([0.0, 1.0])
+            kernel = self._affine_kernel()
+        self._kernel = kernel
 
-    def _affine_advance(self):
+    def _output_buffers(self):
+        return (self.every, self.out_q, self.out_v, self.out_a, self.out_e, self.out_step, self.count)
+
+    def _event_buffers(self):
+        return (self.watch_element, self.watch_kind, self.watch_prev, self.ev_step, self.ev_frac,
+                self.ev_watch, self.ev_value, self.n_ev)  # fmt: skip
+
+    def _affine_kernel(self):
         from lumped.linear_steppers import affine_maps
 
         if self.m.nonlinear.count:
@@ -624,55 +619,38 @@ class _Engine:
             )
         cache: dict[float, tuple] = {}
 
-        def maps(h):
+        def kernel(start, n, h, tables):
             if h not in cache:
                 cache[h] = affine_maps(self.m, self.stepper, h)
-            return cache[h]
+            G, H0, H1, Qmap, Vmap, VWmap, to_state = cache[h]
+            # Inputs at the step boundaries: each step's start, then the last step's end.
+            u, ud, udd, F = (np.concatenate([x[:, 0], x[-1:, 1]]) for x in tables)
+            W = np.concatenate([u, ud, udd, F], axis=1)
+            z = to_state(self.q, self.v, W[0])
+            status, done, self.count, _ = kernels.affine_chunk(
+                G, H0, H1, z, self.energy, h, start, n, W, u[:, None, :].copy(),
+                ud[:, None, :].copy(), udd[:, None, :].copy(), F[:, None, :].copy(), Qmap, Vmap,
+                VWmap, self.model, *self._output_buffers(), self.q_limit,
+            )  # fmt: skip
+            self.q = Qmap @ z
+            self.v = Vmap @ z + VWmap @ W[min(done, n)]
+            return status, done
 
-        self._z = None
+        return kernel
 
-        def advance(k0, count, h=None):
-            for start, n in self._uniform_runs(k0, count) if h is None else [(k0, count)]:
-                step_h = self._step_sizes(start, n)[0] if h is None else h
-                G, H0, H1, Qmap, Vmap, VWmap, to_state = maps(step_h)
-                t0 = start * self.h if h is None else self._substep_start
-                times = t0 + np.arange(n + 1) * step_h
-                if h is None and start + n == self.steps:
-                    times[-1] = self.T
-                ends = np.arange(n + 1) > 0
-                u, ud, udd, F = self.inputs.at(times, left=ends)
-                W = np.concatenate([u, ud, udd, F], axis=1)
-                z = to_state(self.q, self.v, W[0])
-                status, done, self.count, _ = kernels.affine_chunk(
-                    G, H0, H1, z, self.energy, step_h, start, n, W, u[:, None, :].copy(),
-                    ud[:, None, :].copy(), udd[:, None, :].copy(), F[:, None, :].copy(), Qmap, Vmap, VWmap,
-                    self.model, self.every, self.out_q, self.out_v, self.out_a, self.out_e,
-                    self.out_step, self.count, self.q_limit,
-                )  # fmt: skip
-                last = min(done, n)
-                self.q = Qmap @ z
-                self.v = Vmap @ z + VWmap @ W[last]
-                if status != kernels.OK:
-                    return status, start - k0 + done
-            return kernels.OK, count
-
-        return advance
-
-    def _split_step(self, advance, k, t_jump, s, size):
+    def _split_step(self, k, t_jump, s, size):
         """Step k → k+1 in two substeps around a jump at ``t_jump``."""
         t_start = k * self.h
         t_end = self._time(k + 1)
         every, self.every = self.every, 1 << 62  # no samples at the inner point
         status = (kernels.OK, 0)
         if t_jump > t_start:
-            self._substep_start = t_start
-            status = advance(k, 1, t_jump - t_start)
+            status = self._advance(k, 1, (t_start, t_jump - t_start))
         self.every = every
         if status[0] != kernels.OK:
             return status
         self._apply_jump(s, size, t_jump)
-        self._substep_start = t_jump
-        return advance(k, 1, t_end - t_jump)
+        return self._advance(k, 1, (t_jump, t_end - t_jump))
 
     def _apply_jump(self, s: int, size: float, time: float):
         """A support jumps by ``size``: dampers to it give the bodies an impulse,
