@@ -10,9 +10,9 @@ Run: python benchmarks/assemble_chain.py [N]
 import sys
 
 import networkx as nx
+from _timing import median_time
 
 import lumped
-from _timing import median_time
 
 TARGET_SECONDS = 2.0
 

@@ -13,11 +13,11 @@ Run: python benchmarks/corner_rk4.py
 import dataclasses
 
 import numpy as np
+from _timing import median_time
 from scipy.integrate import solve_ivp
 
 import lumped
 import lumped.simulate
-from _timing import median_time
 from lumped.convergence import relative_error
 from lumped.simulate import simulate
 

@@ -15,9 +15,9 @@ import sys
 import numpy as np
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
+from _timing import median_time
 
 import lumped
-from _timing import median_time
 from lumped.modal import stiffest_mode
 
 TARGET_SECONDS = 1.0

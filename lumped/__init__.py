@@ -26,6 +26,7 @@ from lumped.demos import DEMO_DIR, demo_path, demo_systems
 from lumped.errors import LumpedError, ModelError, Problem
 from lumped.files import dump_path, dumps, load, loads, save
 from lumped.frequency import FrequencyResponse, frequency_response, transfer, transmissibility
+from lumped.metrics import Figure, road_figures, run_figures
 from lumped.model import (
     Body,
     BumpInput,
@@ -44,7 +45,6 @@ from lumped.model import (
     check_system,
     uniform_chain,
 )
-from lumped.metrics import Figure, road_figures, run_figures
 from lumped.report import SystemSummary, node_levels, summarize
 from lumped.static import StaticError, StaticState, static_equilibrium
 from lumped.steppers import STEPPERS, Stepper, get_stepper

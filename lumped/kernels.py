@@ -313,10 +313,10 @@ def rk_chunk(
             for r in range(n):
                 sq = q[r]
                 sv = v[r]
-                for l in range(i):
-                    if A[i, l] != 0.0:
-                        sq += h * A[i, l] * kq[l, r]
-                        sv += h * A[i, l] * kv[l, r]
+                for other in range(i):
+                    if A[i, other] != 0.0:
+                        sq += h * A[i, other] * kq[other, r]
+                        sv += h * A[i, other] * kv[other, r]
                 qs[r] = sq
                 vs[r] = sv
             body_accelerations(qs, vs, U, Ud, Udd, FF, j, stage_col[i], model, acc, rates)
@@ -454,10 +454,10 @@ def affine_chunk(
         w1 = W[j + 1]
         for r in range(nz):
             s = 0.0
-            for l in range(nz):
-                s += G[r, l] * z[l]
-            for l in range(w0.shape[0]):
-                s += H0[r, l] * w0[l] + H1[r, l] * w1[l]
+            for other in range(nz):
+                s += G[r, other] * z[other]
+            for other in range(w0.shape[0]):
+                s += H0[r, other] * w0[other] + H1[r, other] * w1[other]
             znew[r] = s
         for r in range(nz):
             z[r] = znew[r]
@@ -485,10 +485,10 @@ def _affine_body_state(z, w, Qmap, Vmap, VWmap, q, v):
     for r in range(Qmap.shape[0]):
         sq = 0.0
         sv = 0.0
-        for l in range(z.shape[0]):
-            sq += Qmap[r, l] * z[l]
-            sv += Vmap[r, l] * z[l]
-        for l in range(w.shape[0]):
-            sv += VWmap[r, l] * w[l]
+        for other in range(z.shape[0]):
+            sq += Qmap[r, other] * z[other]
+            sv += Vmap[r, other] * z[other]
+        for other in range(w.shape[0]):
+            sv += VWmap[r, other] * w[other]
         q[r] = sq
         v[r] = sv

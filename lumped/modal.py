@@ -382,7 +382,7 @@ def stiffest_mode(matrices: Matrices, seed: int = 0) -> StiffestMode:
     diagonal = matrices.mass_is_diagonal
     sqrt_inv = 1.0 / np.sqrt(matrices.M.diagonal()) if diagonal else None
     estimate, iterations = 0.0, 0
-    for iterations in range(1, STIFFEST_MAX_ITERATIONS + 1):
+    for iterations in range(1, STIFFEST_MAX_ITERATIONS + 1):  # noqa: B007 (reported)
         if diagonal:
             y = sqrt_inv * (matrices.K @ (sqrt_inv * x))
             rayleigh = float(x @ y) / float(x @ x)

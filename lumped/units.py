@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import math
 import re
-import re
 from dataclasses import dataclass
 from functools import lru_cache
 

@@ -187,7 +187,7 @@ def test_harmonic_shape_rates_and_start_jump(phase):
 def test_sweep_shape_and_rates(spacing):
     amplitude, f0, f1, duration = 2.0, 1.0, 20.0, 4.0
     sweep = signal_of(lumped.SweepInput("sweep", amplitude, f0, f1, duration, spacing))
-    t = np.linspace(0.0, duration, 40_001)
+    t = np.linspace(0.0, duration, 40_001)[:-1]  # [0, T): at T the sweep may jump to 0
     # Phase = 2π ∫ f(t) dt with f(t) = f0 + (f1 − f0)t/T (linear) or f0 (f1/f0)^{t/T}
     # (logarithmic): common practice.
     if spacing == "linear":
@@ -206,10 +206,48 @@ def test_sweep_shape_and_rates(spacing):
     np.testing.assert_allclose(sweep.rate2(inner), central_difference(sweep.rate, inner, delta), rtol=0, atol=1e-6 * amplitude * w1**2)
     # Zero after the sweep; if it ends off zero, that is a jump back to zero at T.
     assert sweep.value(duration + 0.01) == 0.0
-    end = amplitude * math.sin(phase[-1])
+    if spacing == "linear":
+        end = amplitude * math.sin(2 * math.pi * (f0 * duration + 0.5 * (f1 - f0) * duration))
+    else:
+        end = amplitude * math.sin(2 * math.pi * f0 * duration / math.log(f1 / f0) * (f1 / f0 - 1))
     if abs(end) > 1e-9:
         (time, size), = sweep.jumps()
         assert time == duration and size == pytest.approx(-end, rel=1e-9)
+    else:  # the linear sweep here ends after a whole number of cycles (42)
+        assert sweep.jumps() == []
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="lumped.excitation.SweepSignal is not right-continuous at its end: _theta's "
+    "'on = t <= T' keeps value(T) = A sin θ(T) although jumps() reports the jump back to "
+    "zero at T, so a run takes the left limit at T as 2·A sin θ(T) and books the jump's "
+    "energy wrongly",
+)
+def test_sweep_is_right_continuous_at_its_end():
+    """Signals are right-continuous (lumped.excitation's convention, as the step and the
+    table are): after the jump at T the sweep is 0, so value(T) = 0. In a run, the
+    support sample at T shows the position after the jump, and the energy balance
+    closes through it (REFERENCES.md "Energy")."""
+    amplitude, f0, f1, duration = 0.01, 1.0, 5.0, 0.9  # ends at A sin(2π·2.7) ≈ −0.95 A
+    sweep = signal_of(lumped.SweepInput("sweep", amplitude, f0, f1, duration))
+    (time, size), = sweep.jumps()
+    assert time == duration and abs(size) > 0.5 * amplitude
+    assert sweep.value(duration) == 0.0
+    mass, stiffness, c = 2.0, 800.0, 16.0
+    system = lumped.System(
+        name="swept",
+        bodies={"b": lumped.Body("b", mass)},
+        supports={"g": lumped.Support("g", motion="sweep")},
+        springs={"k": lumped.Spring("k", ("g", "b"), stiffness)},
+        dampers={"c": lumped.Damper("c", ("g", "b"), coefficient=c)},
+        inputs={"sweep": lumped.SweepInput("sweep", amplitude, f0, f1, duration)},
+    )
+    result = simulate(system, "rk4", 1e-3, 1.2)
+    at_end = int(np.argmin(np.abs(result.time - duration)))
+    assert result.support_displacement[at_end, 0] == 0.0
+    # The jump's energy is ½k·size² at most; the balance closes far better than that.
+    assert np.max(np.abs(result.balance_error)) < 0.05 * 0.5 * stiffness * size**2
 
 
 def test_table_shape_rates_and_start_jump():
