@@ -200,7 +200,7 @@ class SweepSignal(Signal):
             theta = 2 * np.pi * (f0 * t + 0.5 * rate * t * t)
             d1 = 2 * np.pi * (f0 + rate * t)
             d2 = np.full_like(t, 2 * np.pi * rate)
-        return theta, d1, d2, t <= T
+        return theta, d1, d2, t < T
 
     def _value(self, t):
         theta, _, _, on = self._theta(t)

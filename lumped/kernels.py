@@ -434,8 +434,8 @@ def affine_chunk(
     out_every, out_q, out_v, out_a, out_e, out_step, n_out, q_limit,
 ):  # fmt: skip
     """Linear steppers as one affine map per step, z₁ = G z + H0 w₀ + H1 w₁, where
-    ``W[j] = [u, u', u'', F]`` holds the inputs at step j's start and ``W[j+1]`` at
-    its end (and ``U[j, 0]`` … ``FF[j, 0]`` the same split by kind). Body displacement q = Qmap z and velocity v = Vmap z + VWmap w; the
+    ``W[j, 0] = [u, u', u'', F]`` holds the inputs at step j's start and ``W[j, 1]``
+    at its end (left limits), and ``U[j, c]`` … ``FF[j, c]`` the same split by kind. Body displacement q = Qmap z and velocity v = Vmap z + VWmap w; the
     acceleration and energy rates come from :func:`body_accelerations`, the rates
     integrated by the trapezoid rule (second order, as these steppers)."""
     nz = z.shape[0]
@@ -446,12 +446,12 @@ def affine_chunk(
     acc = np.zeros(n)
     rates = np.zeros(3)
     old = np.zeros(3)
-    _affine_body_state(z, W[0], Qmap, Vmap, VWmap, q, v)
+    _affine_body_state(z, W[0, 0], Qmap, Vmap, VWmap, q, v)
     body_accelerations(q, v, U, Ud, Udd, FF, 0, 0, model, acc, old)
     m = n_out
     for j in range(nsteps):
-        w0 = W[j]
-        w1 = W[j + 1]
+        w0 = W[j, 0]
+        w1 = W[j, 1]
         for r in range(nz):
             s = 0.0
             for other in range(nz):
@@ -462,7 +462,7 @@ def affine_chunk(
         for r in range(nz):
             z[r] = znew[r]
         _affine_body_state(z, w1, Qmap, Vmap, VWmap, q, v)
-        body_accelerations(q, v, U, Ud, Udd, FF, j + 1, 0, model, acc, rates)
+        body_accelerations(q, v, U, Ud, Udd, FF, j, 1, model, acc, rates)
         worst = 0.0
         for r in range(n):
             x = abs(q[r])

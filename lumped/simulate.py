@@ -40,6 +40,8 @@ CHUNK_STEPS = 8192
 DIVERGENCE_FACTOR = 1e6
 #: Default cap on the memory a run's output may take: a quarter of the machine's.
 MEMORY_FRACTION = 0.25
+#: Ends of steps read the inputs this fraction of a step early (their left limits).
+LEFT_LIMIT = 1e-9
 #: Dense mass matrices (inerters between bodies) up to this many bodies.
 DENSE_MASS_LIMIT = 500
 #: scipy.integrate.solve_ivp methods, by the ids the tool uses for them.
@@ -246,14 +248,15 @@ class _Inputs:
     forces: list[Signal]
     scales: np.ndarray
 
-    def at(self, t: np.ndarray, left=False):
+    def at(self, t: np.ndarray, before=0.0):
         """u, u', u'' (…, n_supports) and force-input values (…, n_forces) at times t.
 
-        Signals are right-continuous; where ``left`` (a bool, or an array broadcasting
-        with ``t``) is true, a time that falls on a jump gets the value just before it,
-        as the end of a step that stops at the jump must see.
+        Signals are right-continuous. ``before`` (s, broadcasting with ``t``) reads
+        them that much earlier: the end stage of a step reads them
+        :data:`LEFT_LIMIT` × h early, so that at a step, a bump's edge or a table's
+        knot on the grid it sees the value and rates from before it.
         """
-        t = np.asarray(t, dtype=float)
+        t = np.asarray(t, dtype=float) - before
         shape = t.shape
         ns, nf = len(self.supports), len(self.forces)
         u = np.zeros(shape + (ns,))
@@ -268,11 +271,6 @@ class _Inputs:
         F = np.zeros(shape + (nf,))
         for j, signal in enumerate(self.forces):
             F[..., j] = signal.value(t)
-        if np.any(left):
-            left = np.broadcast_to(left, shape)
-            for s, (signal, delay) in enumerate(self.supports):
-                for time, size in signal.jumps() if signal is not None else ():
-                    u[..., s] -= np.where(left & (t == time + delay), size, 0.0)
         return u, ud, udd, F
 
     def jumps(self, duration: float) -> list[tuple[float, int, float]]:
@@ -460,6 +458,7 @@ class _Engine:
         self.ev_watch = np.zeros(self.ev_capacity, dtype=np.int64)
         self.ev_value = np.zeros(self.ev_capacity)
         self.n_ev = 0
+        self.substep_events: list[tuple[int, int, float, float]] = []  # (first, end, t0, h)
         self.watch_prev = np.zeros(len(elements))
         if len(elements):
             u, *_ = self.inputs.at(np.array(0.0))
@@ -483,7 +482,7 @@ class _Engine:
 
     def run(self, progress, cancel, verdict) -> RunResult:
         self._choose_kernel()
-        jumps = self.inputs.jumps(self.T)
+        jumps = [(self._on_grid(t), s, size) for t, s, size in self.inputs.jumps(self.T)]
         status, message = "completed", ""
         for time, s, size in [j for j in jumps if j[0] == 0.0]:
             self._apply_jump(s, size, time)
@@ -517,6 +516,12 @@ class _Engine:
 
     def _time(self, k: int) -> float:
         return self.T if k >= self.steps else k * self.h
+
+    def _on_grid(self, time: float) -> float:
+        """``time``, or the grid time k·h it misses only by rounding (0.123 s is
+        1230 × 0.1 ms on paper, 0.12300000000000001 s on the grid)."""
+        k = round(time / self.h)
+        return self._time(k) if abs(time - k * self.h) <= LEFT_LIMIT * self.h else time
 
     def _store_current(self, k: int):
         u, ud, udd, F = self.inputs.at(np.array(self._time(k)))
@@ -560,7 +565,7 @@ class _Engine:
     def _advance(self, k0: int, count: int, substep=None):
         """Steps k0 … k0+count−1 (or one substep); returns (status, steps done)."""
         for start, n, h, times in self._pieces(k0, count, substep):
-            tables = self.inputs.at(times, left=self.offsets[None, :] > 0)
+            tables = self.inputs.at(times, before=np.where(self.offsets > 0, LEFT_LIMIT * h, 0.0))
             status, done = self._kernel(start, n, h, tables)
             if status != kernels.OK:
                 return status, start - k0 + done
@@ -623,17 +628,15 @@ class _Engine:
             if h not in cache:
                 cache[h] = affine_maps(self.m, self.stepper, h)
             G, H0, H1, Qmap, Vmap, VWmap, to_state = cache[h]
-            # Inputs at the step boundaries: each step's start, then the last step's end.
-            u, ud, udd, F = (np.concatenate([x[:, 0], x[-1:, 1]]) for x in tables)
-            W = np.concatenate([u, ud, udd, F], axis=1)
-            z = to_state(self.q, self.v, W[0])
+            # Inputs at each step's start (column 0) and end (column 1, left limits).
+            W = np.concatenate(tables, axis=2)
+            z = to_state(self.q, self.v, W[0, 0])
             status, done, self.count, _ = kernels.affine_chunk(
-                G, H0, H1, z, self.energy, h, start, n, W, u[:, None, :].copy(),
-                ud[:, None, :].copy(), udd[:, None, :].copy(), F[:, None, :].copy(), Qmap, Vmap,
-                VWmap, self.model, *self._output_buffers(), self.q_limit,
+                G, H0, H1, z, self.energy, h, start, n, W, *tables, Qmap, Vmap, VWmap,
+                self.model, *self._output_buffers(), self.q_limit,
             )  # fmt: skip
             self.q = Qmap @ z
-            self.v = Vmap @ z + VWmap @ W[min(done, n)]
+            self.v = Vmap @ z + VWmap @ W[max(done, 1) - 1, 1]
             return status, done
 
         return kernel
@@ -645,12 +648,19 @@ class _Engine:
         every, self.every = self.every, 1 << 62  # no samples at the inner point
         status = (kernels.OK, 0)
         if t_jump > t_start:
-            status = self._advance(k, 1, (t_start, t_jump - t_start))
+            status = self._substep(k, t_start, t_jump - t_start)
         self.every = every
         if status[0] != kernels.OK:
             return status
         self._apply_jump(s, size, t_jump)
-        return self._advance(k, 1, (t_jump, t_end - t_jump))
+        return self._substep(k, t_jump, t_end - t_jump)
+
+    def _substep(self, k: int, start: float, length: float):
+        """One part of a split step; events found in it are dated within it."""
+        first = self.n_ev
+        status = self._advance(k, 1, (start, length))
+        self.substep_events.append((first, self.n_ev, start, length))
+        return status
 
     def _apply_jump(self, s: int, size: float, time: float):
         """A support jumps by ``size``: dampers to it give the bodies an impulse,
@@ -678,7 +688,7 @@ class _Engine:
                 self.events.append(Event(time, self.m.element_ids[self.watch_element[w]],
                                          self._event_kind(w, values[w])))  # fmt: skip
             self.watch_prev[:] = values
-        if self.count and self._time(int(self.out_step[self.count - 1])) == time:
+        if self.count and abs(self._time(int(self.out_step[self.count - 1])) - time) <= LEFT_LIMIT * self.h:
             self.count -= 1
             self._store_current(int(self.out_step[self.count]))
 
@@ -692,11 +702,8 @@ class _Engine:
     def _energy_now(self, time: float, shift=None) -> float:
         """Kinetic plus stored energy with the supports where they were just before
         ``time`` (moved by ``shift`` = (support, size) when given), J."""
-        u, ud, udd, _ = self.inputs.at(np.array(time))
+        u, ud, udd, _ = self.inputs.at(np.array(time), before=LEFT_LIMIT * self.h)
         u = np.array(u, dtype=float)
-        for t_jump, s, size in self.inputs.jumps(self.T):
-            if t_jump == time:
-                u[s] -= size  # back to the left limit
         if shift is not None:
             u[shift[0]] += shift[1]
         kinetic = 0.5 * float(self.v @ (self.m.M @ self.v))
@@ -781,8 +788,10 @@ class _Engine:
             w = int(self.ev_watch[j])
             element = self.m.element_ids[int(self.watch_element[w])]
             step = int(self.ev_step[j])
-            t1 = self._time(step)
-            t0 = (step - 1) * self.h
+            t0, t1 = (step - 1) * self.h, self._time(step)
+            for first, end, start, length in self.substep_events:
+                if first <= j < end:
+                    t0, t1 = start, start + length
             time = t0 + float(self.ev_frac[j]) * (t1 - t0)
             out.append(Event(time, element, self._event_kind(w, self.ev_value[j])))
         if self.n_ev > self.ev_capacity:
