@@ -86,6 +86,16 @@ class Signal:
         t = np.asarray(t, dtype=float)
         return np.where(t >= 0, self._rate2(np.maximum(t, 0.0)), 0.0)
 
+    def motion(self, t):
+        """Value, rate and second rate at ``t`` together (one pass where it pays)."""
+        t = np.asarray(t, dtype=float)
+        started = t >= 0
+        parts = self._motion(np.maximum(t, 0.0))
+        return tuple(np.where(started, part, 0.0) for part in parts)
+
+    def _motion(self, t):
+        return self._value(t), self._rate(t), self._rate2(t)
+
     def jumps(self) -> list[tuple[float, float]]:
         """(time, size) of each jump in value, SI."""
         return []
@@ -144,6 +154,13 @@ class BumpSignal(Signal):
         w = 2 * np.pi * self.speed / self.length
         return np.where(on, 0.5 * self.height * w * w * np.cos(2 * np.pi * s), 0.0)
 
+    def _motion(self, t):
+        s, on = self._phase(t)
+        w = 2 * np.pi * self.speed / self.length
+        half = np.where(on, 0.5 * self.height, 0.0)
+        cos, sin = np.cos(2 * np.pi * s), np.sin(2 * np.pi * s)
+        return half * (1 - cos), half * w * sin, half * w * w * cos
+
     @property
     def amplitude(self):
         return abs(self.height)
@@ -167,6 +184,11 @@ class HarmonicSignal(Signal):
     def _rate2(self, t):
         w = 2 * np.pi * self.frequency
         return -self.size * w * w * np.sin(w * t + self.phase)
+
+    def _motion(self, t):
+        w = 2 * np.pi * self.frequency
+        sin, cos = np.sin(w * t + self.phase), np.cos(w * t + self.phase)
+        return self.size * sin, self.size * w * cos, -self.size * w * w * sin
 
     def jumps(self):
         start = self.size * math.sin(self.phase)
@@ -309,6 +331,13 @@ class RoadSignal(Signal):
         z, dz, d2z = self._interp(x)
         w, dw, d2w = self._fade(x)
         return self.speed**2 * (w * d2z + 2 * dw * dz + d2w * z)
+
+    def _motion(self, t):
+        x = self._position(t)
+        z, dz, d2z = self._interp(x)
+        w, dw, d2w = self._fade(x)
+        v = self.speed
+        return w * z, v * (w * dz + dw * z), v * v * (w * d2z + 2 * dw * dz + d2w * z)
 
     @property
     def amplitude(self):

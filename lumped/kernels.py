@@ -75,18 +75,19 @@ def body_accelerations(q, v, U, Ud, Udd, FF, j, col, model, acc, rates):
     compiled function costs reference counting in the hot loop.
 
     ``model`` is the tuple built by the driver: ``(links, nonlinear, inerters,
-    table, minv, Minv, dense_mass, fbody, fscale, scratch)`` (``scratch``: n floats of
-    work space — an allocation here, even in a branch not taken, costs more than the
-    whole loop of a small system). ``links = (a, b, k, c)`` are the
+    table, m_ptr, m_col, m_val, fbody, fscale, scratch)``: M⁻¹ as CSR arrays (one
+    entry per row without inerters between bodies; a branch on the mass kind instead
+    made a small system's step six times slower), and ``scratch``, n floats of work
+    space for the nodal forces. ``links = (a, b, k, c)`` are the
     linear springs and dampers merged per node pair — the tight loop that carries a
     large chain; ``nonlinear`` and ``inerters`` index the element ``table`` (see
     :func:`element_state`), evaluated one by one.
     """
-    links, nonlinear, inerters, table, minv, Minv, dense_mass, fbody, fscale, scratch = model
+    links, nonlinear, inerters, table, m_ptr, m_col, m_val, fbody, fscale, scratch = model
     la, lb, lk, lc = links
     ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf = table
     n = q.shape[0]
-    force = acc  # accumulate the nodal forces in place, then scale by the mass
+    force = scratch  # nodal forces, then acc = M⁻¹ force
     for i in range(n):
         force[i] = 0.0
     dissipated = 0.0
@@ -156,17 +157,11 @@ def body_accelerations(q, v, U, Ud, Udd, FF, j, col, model, acc, rates):
         load = fscale[i] * FF[j, col, i]
         force[fbody[i]] += load
         work += load * v[fbody[i]]
-    if dense_mass:
-        for i in range(n):
-            scratch[i] = force[i]
-        for i in range(n):
-            s = 0.0
-            for r in range(n):
-                s += Minv[i, r] * scratch[r]
-            acc[i] = s
-    else:
-        for i in range(n):
-            acc[i] = minv[i] * force[i]
+    for i in range(n):
+        s = 0.0
+        for p in range(m_ptr[i], m_ptr[i + 1]):
+            s += m_val[p] * force[m_col[p]]
+        acc[i] = s
     for m in range(inerters.shape[0]):  # an inerter's whole force b·δ'' works on its support
         e = inerters[m]
         a = ea[e]

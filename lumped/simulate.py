@@ -22,6 +22,7 @@ from collections.abc import Callable
 from dataclasses import dataclass, field
 
 import numpy as np
+import scipy.sparse as sp
 
 from lumped import kernels
 from lumped.assemble import DENSE_LIMIT, Matrices, assemble, mass_solver
@@ -264,10 +265,7 @@ class _Inputs:
         udd = np.zeros(shape + (ns,))
         for s, (signal, delay) in enumerate(self.supports):
             if signal is not None:
-                local = t - delay
-                u[..., s] = signal.value(local)
-                ud[..., s] = signal.rate(local)
-                udd[..., s] = signal.rate2(local)
+                u[..., s], ud[..., s], udd[..., s] = signal.motion(t - delay)
         F = np.zeros(shape + (nf,))
         for j, signal in enumerate(self.forces):
             F[..., j] = signal.value(t)
@@ -299,15 +297,19 @@ def _inputs(system: System, matrices: Matrices) -> _Inputs:
     return _Inputs(supports, forces, np.array([system.forces[f].scale for f in matrices.force_ids]))
 
 
-def _mass_arguments(matrices: Matrices):
+def _inverse_mass(matrices: Matrices) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """M⁻¹ as CSR arrays (row pointers, columns, values) for the kernels: diagonal
+    without inerters between bodies, dense (up to :data:`DENSE_MASS_LIMIT`) with them."""
     if matrices.mass_is_diagonal:
-        return 1.0 / matrices.M.diagonal(), np.zeros((1, 1)), False
-    if matrices.n > DENSE_MASS_LIMIT:
+        inverse = sp.diags_array(1.0 / matrices.M.diagonal()).tocsr()
+    elif matrices.n > DENSE_MASS_LIMIT:
         raise RunError(
             f"inerters between bodies need a dense mass inverse, limited to {DENSE_MASS_LIMIT} "
             f"bodies; this system has {matrices.n}"
         )
-    return np.zeros(matrices.n), np.linalg.inv(matrices.M.toarray()), True
+    else:
+        inverse = sp.csr_matrix(np.linalg.inv(matrices.M.toarray()))
+    return inverse.indptr.astype(np.int64), inverse.indices.astype(np.int64), inverse.data.astype(float)
 
 
 def memory_cap() -> int:
@@ -417,12 +419,11 @@ class _Engine:
         self.every = output_every
         self.table = _element_table(matrices, static)
         self.inputs = _inputs(system, matrices)
-        self.minv, self.Minv, self.dense_mass = _mass_arguments(matrices)
         self.fbody = np.array([matrices.body_ids.index(system.forces[f].on) for f in matrices.force_ids], dtype=np.int64)
         self.fscale = self.inputs.scales.astype(float)
         self.model = (self.table.links(), self.table.nonlinear(), self.table.inerters(),
-                      self.table.args(), self.minv, self.Minv, self.dense_mass, self.fbody,
-                      self.fscale, np.zeros(matrices.n))  # fmt: skip
+                      self.table.args(), *_inverse_mass(matrices), self.fbody, self.fscale,
+                      np.zeros(matrices.n))  # fmt: skip
         n = matrices.n
         self.q = np.array([system.bodies[b].initial_displacement for b in matrices.body_ids], dtype=float)
         self.v = np.array([system.bodies[b].initial_velocity for b in matrices.body_ids], dtype=float)
