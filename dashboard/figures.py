@@ -12,13 +12,24 @@ import html
 import math
 from collections import defaultdict
 
+import numpy as np
 import plotly.graph_objects as go
+from plotly.subplots import make_subplots
 
 import lumped
-from dashboard.tables import force_text, length_text, mass_text
+from dashboard.tables import force_text, length_text, mass_text, unit_text
 from lumped.units import display
 
-__all__ = ["EDGE_STYLE", "LABEL_LIMIT", "node_positions", "system_graph"]
+__all__ = [
+    "EDGE_STYLE",
+    "LABEL_LIMIT",
+    "PLOT_POINTS",
+    "mode_shape",
+    "node_positions",
+    "response_plot",
+    "system_graph",
+    "time_series",
+]
 
 #: Line style per element kind: colour, dash pattern and width.
 EDGE_STYLE = {
@@ -257,4 +268,137 @@ def system_graph(system: lumped.System, summary: lumped.SystemSummary | None = N
         yaxis={"visible": False, "range": [-0.45 if labelled else -0.02 * top - 0.5,
                                            top + (0.35 if labelled else 0.02 * top + 0.5)]},
     )  # fmt: skip
+    return fig
+
+
+# --------------------------------------------------------------------------- analysis plots
+
+LINE_COLOURS = ["#1f5a8c", "#b4582a", "#3d7d4a", "#5e4b8b", "#8c6d1f", "#2a8a8f", "#8c2f4f",
+                "#4d5660"]  # fmt: skip
+PEAK_COLOUR = "#b4582a"
+#: Time plots keep at most about this many points per channel (every k-th sample).
+PLOT_POINTS = 20_000
+
+_AXIS = {"showline": True, "linecolor": "#9aa4ad", "gridcolor": "#e4e8ec", "zeroline": False,
+         "exponentformat": "power"}  # fmt: skip
+
+
+def _base_layout(fig: go.Figure, height: int, title: str) -> go.Figure:
+    fig.update_layout(
+        height=height,
+        title={"text": title, "x": 0, "xanchor": "left", "font": {"size": 14}},
+        margin={"l": 10, "r": 10, "t": 60, "b": 10},
+        plot_bgcolor="white",
+        paper_bgcolor="white",
+        hovermode="x unified",
+        legend={"orientation": "h", "x": 0, "y": 1.0, "yanchor": "bottom", "font": {"size": 12}},
+    )
+    fig.update_xaxes(**_AXIS)
+    fig.update_yaxes(**_AXIS)
+    return fig
+
+
+def mode_shape(mode, number: int) -> go.Figure:
+    """Bar chart of one mode's undamped shape (mass-normalised, by body, as
+    :class:`lumped.modal.Mode` gives it), titled with its number, frequency and kind."""
+    bodies = list(mode.shape)
+    values = [mode.shape[b] for b in bodies]
+    fig = go.Figure(
+        go.Bar(
+            x=[_text(b) for b in bodies], y=values, name="shape",
+            marker={"color": [LINE_COLOURS[0] if v >= 0 else LINE_COLOURS[1] for v in values]},
+            hovertemplate="%{x}: %{y:.4g} kg<sup>-½</sup><extra></extra>",
+        )
+    )  # fmt: skip
+    if mode.rigid:
+        what = "rigid-body mode"
+    else:
+        zeta = "" if mode.damping_ratio is None else f", damping ratio {mode.damping_ratio:.3g}"
+        what = f"{mode.natural_frequency_hz:.4g} Hz{zeta}" + (", overdamped" if mode.overdamped else "")
+    _base_layout(fig, 340, f"Mode {number} · {what}")
+    fig.update_layout(hovermode="closest", showlegend=False)
+    fig.update_yaxes(title={"text": "undamped shape, mass-normalised [kg<sup>-½</sup>]",
+                            "font": {"size": 12}})  # fmt: skip
+    fig.update_xaxes(title={"text": "body", "font": {"size": 12}}, type="category")
+    return fig
+
+
+def response_plot(transfer) -> go.Figure:
+    """|H(f)| on log–log axes above its phase (degrees, log frequency) for a
+    :class:`lumped.frequency.Transfer`; its peaks are marked on both."""
+    unit = unit_text(transfer.unit)
+    f = np.asarray(transfer.frequency, dtype=float)
+    keep = f > 0  # a log axis cannot show 0 Hz
+    f, magnitude, phase = f[keep], transfer.magnitude[keep], transfer.phase_deg[keep]
+    fig = make_subplots(rows=2, cols=1, shared_xaxes=True, vertical_spacing=0.06,
+                        row_heights=[0.64, 0.36])  # fmt: skip
+    fig.add_trace(
+        go.Scatter(x=f, y=magnitude, mode="lines", name="|H|",
+                   line={"color": LINE_COLOURS[0], "width": 2},
+                   hovertemplate=f"%{{x:.4g}} Hz: %{{y:.4g}} {unit}<extra>|H|</extra>"),
+        row=1, col=1,
+    )  # fmt: skip
+    fig.add_trace(
+        go.Scatter(x=f, y=phase, mode="lines", name="phase", showlegend=False,
+                   line={"color": LINE_COLOURS[3], "width": 1.6},
+                   hovertemplate="%{x:.4g} Hz: %{y:.1f}°<extra>phase</extra>"),
+        row=2, col=1,
+    )  # fmt: skip
+    peaks = transfer.peaks
+    if peaks:
+        px = [p.frequency_hz for p in peaks]
+        fig.add_trace(
+            go.Scatter(
+                x=px, y=[p.magnitude for p in peaks], mode="markers+text", name="peaks",
+                text=[f"{p.frequency_hz:.4g} Hz" for p in peaks], textposition="top center",
+                textfont={"size": 11, "color": PEAK_COLOUR},
+                marker={"color": PEAK_COLOUR, "size": 9, "symbol": "diamond"},
+                hovertemplate=f"peak %{{x:.5g}} Hz: %{{y:.4g}} {unit}<extra></extra>",
+            ),
+            row=1, col=1,
+        )  # fmt: skip
+        fig.add_trace(
+            go.Scatter(x=px, y=[p.phase_deg for p in peaks], mode="markers", name="peak phase",
+                       showlegend=False, marker={"color": PEAK_COLOUR, "size": 7, "symbol": "diamond"},
+                       hovertemplate="peak %{x:.5g} Hz: %{y:.1f}°<extra></extra>"),
+            row=2, col=1,
+        )  # fmt: skip
+    _base_layout(fig, 520, _text(transfer.label) + f" [{_text(unit)}]")
+    fig.update_layout(hovermode="closest")
+    fig.update_xaxes(type="log")
+    fig.update_xaxes(title={"text": "frequency [Hz]", "font": {"size": 12}}, row=2, col=1)
+    fig.update_yaxes(type="log", title={"text": f"|H| [{_text(unit)}]", "font": {"size": 12}},
+                     row=1, col=1)  # fmt: skip
+    fig.update_yaxes(title={"text": "phase [°]", "font": {"size": 12}}, range=[-185, 185],
+                     tickvals=[-180, -90, 0, 90, 180], row=2, col=1)  # fmt: skip
+    return fig
+
+
+def time_series(time, series, max_points: int = PLOT_POINTS) -> go.Figure:
+    """Channels of a run against time, one stacked panel per unit (shared time axis).
+
+    ``series`` is a list of ``(name, unit, values)``, e.g. from
+    :meth:`lumped.simulate.RunResult.channels`. Long runs are thinned to every k-th
+    sample so that at most about ``max_points`` points are drawn per channel.
+    """
+    time = np.asarray(time, dtype=float)
+    stride = max(1, math.ceil(len(time) / max_points)) if max_points else 1
+    units = list(dict.fromkeys(unit for _, unit, _ in series)) or ["m"]
+    fig = make_subplots(rows=len(units), cols=1, shared_xaxes=True,
+                        vertical_spacing=0.08 if len(units) > 1 else 0.02)  # fmt: skip
+    for k, (name, unit, values) in enumerate(series):
+        row = units.index(unit) + 1
+        fig.add_trace(
+            go.Scatter(
+                x=time[::stride], y=np.asarray(values)[::stride], mode="lines", name=_text(name),
+                line={"color": LINE_COLOURS[k % len(LINE_COLOURS)], "width": 1.6},
+                hovertemplate=f"%{{y:.5g}} {_text(unit_text(unit))}<extra>{_text(name)}</extra>",
+            ),
+            row=row, col=1,
+        )  # fmt: skip
+        fig.update_yaxes(title={"text": f"[{_text(unit_text(unit))}]", "font": {"size": 12}},
+                         row=row, col=1)  # fmt: skip
+    note = f" · 1 sample in {stride} drawn" if stride > 1 else ""
+    _base_layout(fig, 200 + 190 * len(units), f"Channels against time{note}")
+    fig.update_xaxes(title={"text": "time [s]", "font": {"size": 12}}, row=len(units), col=1)
     return fig

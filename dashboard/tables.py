@@ -5,17 +5,30 @@ from __future__ import annotations
 
 import math
 import re
+import tempfile
 from functools import lru_cache
+from pathlib import Path
 
 import pandas as pd
 
 import lumped
+from lumped.output import write_result
 from lumped.units import display
 
 __all__ = [
     "NO_VALUE",
     "bodies_frame",
+    "check_modes_frame",
     "elements_frame",
+    "events_frame",
+    "figures_frame",
+    "mode_kind",
+    "modes_frame",
+    "number_text",
+    "peaks_frame",
+    "run_csv_bytes",
+    "step_text",
+    "unit_text",
     "force_text",
     "length_text",
     "mass_text",
@@ -135,3 +148,130 @@ def problem_rows(error: Exception) -> list[dict]:
 def problems_frame(rows: list[dict]) -> pd.DataFrame:
     """Problem rows from :func:`problem_rows` as a table."""
     return pd.DataFrame(rows, columns=["item", "field", "problem"])
+
+
+# --------------------------------------------------------------------------- modes and step limits
+
+
+def mode_kind(mode) -> str:
+    """"rigid-body", "overdamped" or "oscillatory" for a :class:`lumped.modal.Mode`."""
+    if mode.rigid:
+        return "rigid-body"
+    return "overdamped" if mode.overdamped else "oscillatory"
+
+
+def modes_frame(modal) -> pd.DataFrame:
+    """One row per mode of a :class:`lumped.modal.ModalResult`, numbered from 1:
+    natural, damped and undamped frequency (Hz), damping ratio (None for a rigid-body
+    mode) and kind."""
+    return pd.DataFrame(
+        [
+            {
+                "mode": k,
+                "natural [Hz]": m.natural_frequency_hz,
+                "damped [Hz]": m.damped_frequency_hz,
+                "undamped [Hz]": m.undamped_frequency_hz,
+                "damping ratio": m.damping_ratio,
+                "kind": mode_kind(m),
+            }
+            for k, m in enumerate(modal.modes, 1)
+        ],
+        columns=["mode", "natural [Hz]", "damped [Hz]", "undamped [Hz]", "damping ratio", "kind"],
+    )
+
+
+def step_text(value: float | None) -> str:
+    """A step limit as text: "no limit" for inf, "none stable" for None or 0."""
+    if value is None or value == 0:
+        return "none stable"
+    if math.isinf(value):
+        return "no limit"
+    if math.isnan(value):
+        return NO_VALUE
+    return display(float(value), "time", digits=5)
+
+
+def number_text(value: float | None, digits: int = 4) -> str:
+    """A plain number as text (NO_VALUE for None or NaN, ∞ for infinity)."""
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return NO_VALUE
+    if math.isinf(value):
+        return "∞" if value > 0 else "−∞"
+    return f"{value:.{digits}g}"
+
+
+def check_modes_frame(check) -> pd.DataFrame:
+    """One row per mode of a :class:`lumped.stability.StepCheck`, numbered from 1:
+    frequency, damping ratio, its step limit, spectral radius per step, growth over the
+    run, the stepper's numerical damping ratio and period error; ``limit`` marks the
+    mode that sets the system's limit."""
+    rows = []
+    for k, m in enumerate(check.modes, 1):
+        rows.append(
+            {
+                "mode": k,
+                "frequency [Hz]": number_text(m.natural_frequency_hz, 6),
+                "damping ratio": number_text(m.damping_ratio),
+                "max stable dt": step_text(m.max_stable_dt),
+                "radius per step": f"{m.spectral_radius:.9f}",
+                "growth over run": number_text(m.growth_over_run, 6),
+                "numerical damping": number_text(m.numerical_damping_ratio),
+                "period error": NO_VALUE if m.period_error is None else f"{m.period_error:+.3e}",
+                "limit": "sets the limit" if check.limiting_mode == k - 1 else "",
+            }
+        )
+    columns = ["mode", "frequency [Hz]", "damping ratio", "max stable dt", "radius per step",
+               "growth over run", "numerical damping", "period error", "limit"]  # fmt: skip
+    return pd.DataFrame(rows, columns=columns)
+
+
+# --------------------------------------------------------------------------- responses and runs
+
+
+def unit_text(unit: str) -> str:
+    """A library unit for people: "m/s^2" → "m/s²", "1" (a ratio or share) → "ratio"."""
+    if unit == "1":
+        return "ratio"
+    return unit.replace("^2", "²")
+
+
+def peaks_frame(transfer) -> pd.DataFrame:
+    """The peaks of a :class:`lumped.frequency.Transfer`: frequency (Hz), magnitude (in
+    the transfer's unit per unit input) and phase (degrees)."""
+    unit = unit_text(transfer.unit)
+    return pd.DataFrame(
+        [
+            {"peak": k, "frequency [Hz]": p.frequency_hz, f"|H| [{unit}]": p.magnitude,
+             "phase [deg]": p.phase_deg}
+            for k, p in enumerate(transfer.peaks, 1)
+        ],
+        columns=["peak", "frequency [Hz]", f"|H| [{unit}]", "phase [deg]"],
+    )  # fmt: skip
+
+
+def figures_frame(rows) -> pd.DataFrame:
+    """Figure rows of :func:`lumped.metrics.run_figures` or ``road_figures`` as a table:
+    figure (its name), item, value (SI), unit and the rule it follows."""
+    return pd.DataFrame(
+        [
+            {"figure": r.name, "item": r.item, "value": r.value, "unit": unit_text(r.unit),
+             "rule": r.rule}
+            for r in rows
+        ],
+        columns=["figure", "item", "value", "unit", "rule"],
+    )  # fmt: skip
+
+
+def events_frame(events) -> pd.DataFrame:
+    """The events of a run (contact changes, support jumps): time (s), element, event."""
+    return pd.DataFrame(
+        [{"time [s]": e.time, "element": e.element, "event": e.kind} for e in events],
+        columns=["time [s]", "element", "event"],
+    )
+
+
+def run_csv_bytes(result) -> bytes:
+    """The CSV file of a run, as :func:`lumped.output.write_result` writes it."""
+    with tempfile.TemporaryDirectory(prefix="lumped-run-") as folder:
+        path = write_result(result, Path(folder) / "run.csv")
+        return path.read_bytes()

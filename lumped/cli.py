@@ -230,6 +230,9 @@ def cmd_run(args) -> int:
     if args.out and Path(args.out).suffix.lower() not in (".csv", ".parquet"):
         print(f"lumped run: --out must end in .csv or .parquet, got {args.out!r}", file=sys.stderr)
         return EXIT_BAD_INPUT
+    if args.out and not Path(args.out).resolve().parent.is_dir():
+        print(f"lumped run: --out folder {Path(args.out).parent} does not exist", file=sys.stderr)
+        return EXIT_BAD_INPUT
     bar = None if args.quiet or not sys.stderr.isatty() else _ProgressBar()
     result = simulate(system, stepper=args.stepper, dt=args.dt, duration=args.duration,
                       output_rate=args.output_rate, progress=bar)  # fmt: skip

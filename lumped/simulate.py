@@ -312,6 +312,13 @@ def _inverse_mass(matrices: Matrices) -> tuple[np.ndarray, np.ndarray, np.ndarra
     return inverse.indptr.astype(np.int64), inverse.indices.astype(np.int64), inverse.data.astype(float)
 
 
+def _size(count: int) -> str:
+    """A byte count for people: MiB, or KiB / bytes when small."""
+    if count >= 2**20:
+        return f"{count / 2**20:,.0f} MiB"
+    return f"{count / 2**10:,.0f} KiB" if count >= 2**10 else f"{count} bytes"
+
+
 def memory_cap() -> int:
     """Bytes a run's output may take by default: a quarter of the machine's memory."""
     try:
@@ -397,8 +404,8 @@ def simulate(
     cap = memory_cap() if max_output_bytes is None else max_output_bytes
     if need > cap:
         raise RunError(
-            f"the output would need {need / 2**20:,.0f} MiB ({samples:,} samples × {width} channels), "
-            f"over the cap of {cap / 2**20:,.0f} MiB; lower the output rate or raise the cap"
+            f"the output would need {_size(need)} ({samples:,} samples × {width} channels), "
+            f"over the cap of {_size(cap)}; lower the output rate or raise the cap"
         )
     verdict = check_step(matrices, stepper, dt, duration) if check else None
     engine = _Engine(system, matrices, static, stepper, dt, duration, steps, output_every, samples)

@@ -89,20 +89,26 @@ def test_road_variance_over_the_band():
     assert np.var(road.value(x / speed)) == pytest.approx(expected, rel=0.05)
     # The engine's own temporal PSD is the same ISO form inside the band, 0 outside.
     f = np.array([0.5, 3.0, 40.0])
-    np.testing.assert_allclose(road.temporal_psd(f), ISO_CLASS_PSD["B"] * (f / speed / N0) ** -2 / speed, rtol=1e-12)
+    np.testing.assert_allclose(
+        road.temporal_psd(f), ISO_CLASS_PSD["B"] * (f / speed / N0) ** -2 / speed, rtol=1e-12
+    )
     assert road.temporal_psd(np.array([0.01 * n1 * speed, 2 * n2 * speed])).tolist() == [0.0, 0.0]
 
 
 def test_road_classes_step_by_a_factor_four_in_psd():
     # Same seed, same phases: class D's profile is twice class C's (PSD × 4).
     t = np.linspace(0.0, 30.0, 3001)
-    np.testing.assert_allclose(RoadSignal("D", 10.0, 5).value(t), 2 * RoadSignal("C", 10.0, 5).value(t), rtol=1e-12, atol=0)
+    np.testing.assert_allclose(
+        RoadSignal("D", 10.0, 5).value(t), 2 * RoadSignal("C", 10.0, 5).value(t), rtol=1e-12, atol=0
+    )
 
 
 def test_road_is_a_profile_in_distance():
     # The same road at twice the speed is passed in half the time.
     t = np.linspace(0.0, 20.0, 2001)
-    np.testing.assert_array_equal(RoadSignal("C", 24.0, 1).value(t), RoadSignal("C", 12.0, 1).value(2 * t))
+    np.testing.assert_array_equal(
+        RoadSignal("C", 24.0, 1).value(t), RoadSignal("C", 12.0, 1).value(2 * t)
+    )
 
 
 def test_road_is_reproducible_from_its_seed(monkeypatch):
@@ -151,7 +157,9 @@ def test_bump_shape_and_rates():
     t = np.linspace(0.0, 0.6, 6001)
     # (H/2)(1 − cos(2πV(t − t₀)/L)) under the wheel, zero before and after.
     on = (t >= start) & (t <= end)
-    expected = np.where(on, 0.5 * height * (1 - np.cos(2 * math.pi * speed * (t - start) / length)), 0.0)
+    expected = np.where(
+        on, 0.5 * height * (1 - np.cos(2 * math.pi * speed * (t - start) / length)), 0.0
+    )
     np.testing.assert_allclose(bump.value(t), expected, rtol=0, atol=1e-15)
     assert bump.value(start + 0.5 * length / speed) == pytest.approx(height, rel=1e-15)
     assert bump.jumps() == []
@@ -159,8 +167,18 @@ def test_bump_shape_and_rates():
     away = np.abs(t - start) > 2 * delta
     away &= np.abs(t - end) > 2 * delta
     w = 2 * math.pi * speed / length
-    np.testing.assert_allclose(bump.rate(t[away]), central_difference(bump.value, t[away], delta), rtol=0, atol=1e-6 * height * w)
-    np.testing.assert_allclose(bump.rate2(t[away]), central_difference(bump.rate, t[away], delta), rtol=0, atol=1e-6 * height * w * w)
+    np.testing.assert_allclose(
+        bump.rate(t[away]),
+        central_difference(bump.value, t[away], delta),
+        rtol=0,
+        atol=1e-6 * height * w,
+    )
+    np.testing.assert_allclose(
+        bump.rate2(t[away]),
+        central_difference(bump.rate, t[away], delta),
+        rtol=0,
+        atol=1e-6 * height * w * w,
+    )
 
 
 @pytest.mark.parametrize("phase", [0.0, 0.7])
@@ -168,16 +186,31 @@ def test_harmonic_shape_rates_and_start_jump(phase):
     amplitude, frequency = 0.003, 4.5
     harmonic = signal_of(lumped.HarmonicInput("sine", amplitude, frequency, phase))
     t = np.linspace(0.0, 1.0, 4001)
-    np.testing.assert_allclose(harmonic.value(t), amplitude * np.sin(2 * math.pi * frequency * t + phase), rtol=0, atol=1e-17)
+    np.testing.assert_allclose(
+        harmonic.value(t),
+        amplitude * np.sin(2 * math.pi * frequency * t + phase),
+        rtol=0,
+        atol=1e-17,
+    )
     assert harmonic.value(-0.1) == 0.0  # zero before its time zero
     inner = t[1:-1]
     delta = 1e-7
     w = 2 * math.pi * frequency
-    np.testing.assert_allclose(harmonic.rate(inner), central_difference(harmonic.value, inner, delta), rtol=0, atol=1e-7 * amplitude * w)
-    np.testing.assert_allclose(harmonic.rate2(inner), central_difference(harmonic.rate, inner, delta), rtol=0, atol=1e-7 * amplitude * w * w)
+    np.testing.assert_allclose(
+        harmonic.rate(inner),
+        central_difference(harmonic.value, inner, delta),
+        rtol=0,
+        atol=1e-7 * amplitude * w,
+    )
+    np.testing.assert_allclose(
+        harmonic.rate2(inner),
+        central_difference(harmonic.rate, inner, delta),
+        rtol=0,
+        atol=1e-7 * amplitude * w * w,
+    )
     # A sine that does not start at zero starts with a jump of A sin φ at t = 0.
     if phase:
-        (time, size), = harmonic.jumps()
+        ((time, size),) = harmonic.jumps()
         assert time == 0.0 and size == pytest.approx(amplitude * math.sin(phase), rel=1e-15)
     else:
         assert harmonic.jumps() == []
@@ -196,14 +229,31 @@ def test_sweep_shape_and_rates(spacing):
     else:
         frequency = f0 * (f1 / f0) ** (t / duration)
         phase = 2 * math.pi * f0 * duration / math.log(f1 / f0) * ((f1 / f0) ** (t / duration) - 1)
-    np.testing.assert_allclose(sweep.value(t), amplitude * np.sin(phase), rtol=0, atol=1e-12 * amplitude)
+    np.testing.assert_allclose(
+        sweep.value(t), amplitude * np.sin(phase), rtol=0, atol=1e-12 * amplitude
+    )
     # rate = A cos(phase) · 2πf(t).
-    np.testing.assert_allclose(sweep.rate(t), amplitude * np.cos(phase) * 2 * math.pi * frequency, rtol=0, atol=1e-10 * amplitude * f1)
+    np.testing.assert_allclose(
+        sweep.rate(t),
+        amplitude * np.cos(phase) * 2 * math.pi * frequency,
+        rtol=0,
+        atol=1e-10 * amplitude * f1,
+    )
     inner = t[1:-1]
     delta = 1e-7
     w1 = 2 * math.pi * f1
-    np.testing.assert_allclose(sweep.rate(inner), central_difference(sweep.value, inner, delta), rtol=0, atol=1e-6 * amplitude * w1)
-    np.testing.assert_allclose(sweep.rate2(inner), central_difference(sweep.rate, inner, delta), rtol=0, atol=1e-6 * amplitude * w1**2)
+    np.testing.assert_allclose(
+        sweep.rate(inner),
+        central_difference(sweep.value, inner, delta),
+        rtol=0,
+        atol=1e-6 * amplitude * w1,
+    )
+    np.testing.assert_allclose(
+        sweep.rate2(inner),
+        central_difference(sweep.rate, inner, delta),
+        rtol=0,
+        atol=1e-6 * amplitude * w1**2,
+    )
     # Zero after the sweep; if it ends off zero, that is a jump back to zero at T.
     assert sweep.value(duration + 0.01) == 0.0
     if spacing == "linear":
@@ -211,19 +261,12 @@ def test_sweep_shape_and_rates(spacing):
     else:
         end = amplitude * math.sin(2 * math.pi * f0 * duration / math.log(f1 / f0) * (f1 / f0 - 1))
     if abs(end) > 1e-9:
-        (time, size), = sweep.jumps()
+        ((time, size),) = sweep.jumps()
         assert time == duration and size == pytest.approx(-end, rel=1e-9)
     else:  # the linear sweep here ends after a whole number of cycles (42)
         assert sweep.jumps() == []
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="lumped.excitation.SweepSignal is not right-continuous at its end: _theta's "
-    "'on = t <= T' keeps value(T) = A sin θ(T) although jumps() reports the jump back to "
-    "zero at T, so a run takes the left limit at T as 2·A sin θ(T) and books the jump's "
-    "energy wrongly",
-)
 def test_sweep_is_right_continuous_at_its_end():
     """Signals are right-continuous (lumped.excitation's convention, as the step and the
     table are): after the jump at T the sweep is 0, so value(T) = 0. In a run, the
@@ -231,7 +274,7 @@ def test_sweep_is_right_continuous_at_its_end():
     closes through it (REFERENCES.md "Energy")."""
     amplitude, f0, f1, duration = 0.01, 1.0, 5.0, 0.9  # ends at A sin(2π·2.7) ≈ −0.95 A
     sweep = signal_of(lumped.SweepInput("sweep", amplitude, f0, f1, duration))
-    (time, size), = sweep.jumps()
+    ((time, size),) = sweep.jumps()
     assert time == duration and abs(size) > 0.5 * amplitude
     assert sweep.value(duration) == 0.0
     mass, stiffness, c = 2.0, 800.0, 16.0
@@ -287,7 +330,10 @@ def test_support_delay_shifts_the_motion():
     bodies = {b: lumped.Body(b, 40.0) for b in ("front", "rear")}
     supports = {"road_f": lumped.Support("road_f", motion="bump"),
                 "road_r": lumped.Support("road_r", motion="bump", delay=delay)}  # fmt: skip
-    springs = {"kf": lumped.Spring("kf", ("road_f", "front"), 2e4), "kr": lumped.Spring("kr", ("road_r", "rear"), 2e4)}
+    springs = {
+        "kf": lumped.Spring("kf", ("road_f", "front"), 2e4),
+        "kr": lumped.Spring("kr", ("road_r", "rear"), 2e4),
+    }
     dampers = {"cf": lumped.Damper("cf", ("road_f", "front"), coefficient=300.0),
                "cr": lumped.Damper("cr", ("road_r", "rear"), coefficient=300.0)}  # fmt: skip
     system = lumped.System(
@@ -298,8 +344,15 @@ def test_support_delay_shifts_the_motion():
     shift = round(delay / dt)
     front, rear = result.body_ids.index("front"), result.body_ids.index("rear")
     sf, sr = result.support_ids.index("road_f"), result.support_ids.index("road_r")
-    np.testing.assert_allclose(result.support_displacement[shift:, sr], result.support_displacement[:-shift, sf], rtol=0, atol=1e-15)
-    np.testing.assert_allclose(result.displacement[shift:, rear], result.displacement[:-shift, front], rtol=0, atol=1e-12)
+    np.testing.assert_allclose(
+        result.support_displacement[shift:, sr],
+        result.support_displacement[:-shift, sf],
+        rtol=0,
+        atol=1e-15,
+    )
+    np.testing.assert_allclose(
+        result.displacement[shift:, rear], result.displacement[:-shift, front], rtol=0, atol=1e-12
+    )
     assert np.all(result.displacement[: shift + round(0.02 / dt), rear] == 0.0)
     # And the delay is the wheelbase over the speed, nothing else: the front's motion is
     # the bump's own definition.
@@ -320,7 +373,9 @@ def test_force_scale_multiplies_the_input():
         forces={"f": lumped.Force("f", "b", "unit_sine", scale=40.0)},
     )
     result = simulate(system, "rk4", 1e-3, 0.5)
-    np.testing.assert_allclose(result.force_input[:, 0], 40.0 * np.sin(2 * math.pi * 3.0 * result.time), rtol=0, atol=1e-12)
+    np.testing.assert_allclose(
+        result.force_input[:, 0], 40.0 * np.sin(2 * math.pi * 3.0 * result.time), rtol=0, atol=1e-12
+    )
 
 
 def test_road_input_from_a_system_file_drives_the_support():
@@ -343,5 +398,9 @@ seed = 9
     system = lumped.loads(text)
     result = simulate(system, "rk4", 1e-3, 2.0)
     reference = RoadSignal("C", 20.0, 9)  # 72 km/h = 20 m/s
-    np.testing.assert_allclose(result.support_displacement[:, 0], reference.value(result.time), rtol=0, atol=1e-15)
-    np.testing.assert_allclose(result.support_velocity[:, 0], reference.rate(result.time), rtol=0, atol=1e-12)
+    np.testing.assert_allclose(
+        result.support_displacement[:, 0], reference.value(result.time), rtol=0, atol=1e-15
+    )
+    np.testing.assert_allclose(
+        result.support_velocity[:, 0], reference.rate(result.time), rtol=0, atol=1e-12
+    )

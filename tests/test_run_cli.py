@@ -114,7 +114,9 @@ def test_csv_layout_and_exact_round_trip(seat_file, tmp_path, capsys):
     }  # fmt: skip
     # The support column is the input's own definition, 2 mm sin(2π·3 Hz·t).
     floor = header.index("floor.displacement [m]")
-    np.testing.assert_allclose(values[:, floor], 0.002 * np.sin(2 * math.pi * 3 * values[:, 0]), rtol=0, atol=1e-15)
+    np.testing.assert_allclose(
+        values[:, floor], 0.002 * np.sin(2 * math.pi * 3 * values[:, 0]), rtol=0, atol=1e-15
+    )
 
 
 def test_options_override_the_run_table(seat_file, tmp_path):
@@ -137,7 +139,9 @@ def test_parquet_has_the_same_columns_and_values(seat_file, tmp_path):
     header, rows = read_csv(csv_out)
     frame = pd.read_parquet(parquet_out)
     assert list(frame.columns) == header
-    np.testing.assert_array_equal(frame.to_numpy(), np.array([[float(c) for c in row] for row in rows]))
+    np.testing.assert_array_equal(
+        frame.to_numpy(), np.array([[float(c) for c in row] for row in rows])
+    )
 
 
 def test_out_replaces_an_existing_file(seat_file, tmp_path):
@@ -178,7 +182,9 @@ def test_json_summary(seat_file, tmp_path, capsys):
     assert summary["status"] == "completed"
     assert summary["stepper"] == "rk4" and summary["dt"] == 1e-3 and summary["duration"] == 0.5
     assert summary["steps"] == 500 and summary["samples"] == len(result.time) == 101
-    assert summary["energy_balance_error"] == pytest.approx(float(np.max(np.abs(result.balance_error))))
+    assert summary["energy_balance_error"] == pytest.approx(
+        float(np.max(np.abs(result.balance_error)))
+    )
 
 
 def test_convergence_option_reports_the_order(seat_file, capsys):
@@ -234,7 +240,10 @@ def test_python_dash_m_lumped_run(seat_file, tmp_path):
     out = tmp_path / "sub.csv"
     done = subprocess.run(
         [sys.executable, "-m", "lumped", "run", str(seat_file), "--out", str(out), "--quiet"],
-        capture_output=True, text=True, cwd=tmp_path, timeout=300,
+        capture_output=True,
+        text=True,
+        cwd=tmp_path,
+        timeout=300,
     )
     assert done.returncode == 0, done.stderr
     assert "Traceback" not in done.stderr

@@ -235,7 +235,7 @@ _CATALOGUE = [
     ExactStepper(
         id="exact", name="exact discretisation (matrix exponential)", order=None, explicit=True,
         evaluations=1, cost="one dense matrix-vector product per step (matrix exponential once)",
-        description="Exact for linear systems with inputs held over a step; dense up to 2 000 bodies.",
+        description="Exact for linear systems whose inputs are linear over each step (first-order hold); dense up to 2 000 bodies.",
     ),
 ]  # fmt: skip
 
