@@ -1,5 +1,6 @@
-"""The lumped dashboard, first page: open a system (a demo or an uploaded file), read
-its summary tables and see it drawn as a graph.
+"""The lumped dashboard: open a system (a demo or an uploaded file), read its summary
+tables and see it drawn as a graph; find its modes and check a step against them;
+plot frequency responses; run it and read its design figures.
 
 Start it from the repository root with ``streamlit run dashboard/app.py`` (or
 ``lumped serve``). Every number shown comes from the library's public API.
@@ -7,6 +8,7 @@ Start it from the repository root with ``streamlit run dashboard/app.py`` (or
 
 from __future__ import annotations
 
+import hashlib
 import sys
 from pathlib import Path
 
@@ -17,7 +19,7 @@ if str(ROOT) not in sys.path:  # streamlit puts only this folder on sys.path
 import streamlit as st  # noqa: E402
 
 import lumped  # noqa: E402
-from dashboard import figures, tables  # noqa: E402
+from dashboard import figures, tables, views  # noqa: E402
 from lumped.units import display  # noqa: E402
 
 CAUTION = (
@@ -28,6 +30,7 @@ DEMO_NOTE = (
     "The demo systems are invented scenarios, not data from real vehicles, machines or structures."
 )
 DEFAULT_DEMO = "quarter_car"
+TABS = ["System", "Modes & step limits", "Frequency response", "Run"]
 UPLOAD_HELP = (
     "A system file in the lumped/1 format (TOML, UTF-8). Table inputs read a CSV file beside "
     "the system file, so a file that uses them can only be opened from disk."
@@ -69,10 +72,13 @@ def build_view(system: lumped.System, summary: lumped.SystemSummary) -> dict:
     }
 
 
-def show(system: lumped.System, summary: lumped.SystemSummary, source: str) -> None:
+def show(system: lumped.System, summary: lumped.SystemSummary, source: str, key: str) -> None:
+    """Make ``system`` the one on screen; ``key`` names it for the caches (the demo's
+    stem, or the uploaded file's name and a hash of its bytes)."""
     state = st.session_state
     state.view = build_view(system, summary)
     state.system, state.summary, state.source = system, summary, source
+    state.system_key = key
 
 
 def show_demo(stem: str) -> None:
@@ -82,7 +88,7 @@ def show_demo(stem: str) -> None:
     state.upload_report = None
     try:
         system, summary = demo_system(stem), demo_summary(stem)
-        show(system, summary, f"demo system · {stem}.toml")
+        show(system, summary, f"demo system · {stem}.toml", f"demo:{stem}")
     except Exception as exc:  # a broken demo file must not break the page
         state.upload_report = {"name": f"demo {stem}", "rows": tables.problem_rows(exc)}
 
@@ -93,7 +99,8 @@ def open_upload(name: str, data: bytes) -> None:
     state = st.session_state
     try:
         system = lumped.loads(data, source=name)
-        show(system, lumped.summarize(system), f"uploaded file · {name}")
+        digest = hashlib.sha256(data).hexdigest()[:16]
+        show(system, lumped.summarize(system), f"uploaded file · {name}", f"upload:{name}:{digest}")
     except Exception as exc:  # nothing a user uploads may end in a traceback
         state.upload_report = {"name": name, "rows": tables.problem_rows(exc)}
         return
@@ -159,7 +166,8 @@ def _text_column(label: str, width: int | None, right: bool = False, help: str |
     )
 
 
-def system_view(summary: lumped.SystemSummary, view: dict) -> None:
+def header(summary: lumped.SystemSummary) -> None:
+    """Name, description, counts and the caution: above the tabs, so always in view."""
     st.title(tables.md_escape(summary.name), anchor=False)
     if summary.description:
         st.markdown(tables.md_escape(summary.description))
@@ -177,6 +185,8 @@ def system_view(summary: lumped.SystemSummary, view: dict) -> None:
             icon=":material/warning:",
         )
 
+
+def system_tab(view: dict) -> None:
     left, right = st.columns(2, gap="large")
     with left:
         st.subheader("Graph", anchor=False)
@@ -239,6 +249,7 @@ def main() -> None:
     if not names:
         st.error("No demo systems were found beside the package.")
     state = st.session_state
+    views.keep_settings()  # before any widget: closed tabs keep their settings
     state.setdefault("system", None)
     state.setdefault("summary", None)
     state.setdefault("source", "")
@@ -247,7 +258,21 @@ def main() -> None:
         sidebar(names)
     upload_problems()
     if state.system is not None:
-        system_view(state.summary, state.view)
+        views.reset_settings(state.system, state.system_key)
+        header(state.summary)
+        tabs = st.tabs(TABS, key="section", on_change="rerun")
+        with tabs[0]:
+            if tabs[0].open:
+                system_tab(state.view)
+        with tabs[1]:
+            if tabs[1].open:
+                views.modes_tab(state.system, state.system_key)
+        with tabs[2]:
+            if tabs[2].open:
+                views.response_tab(state.system, state.system_key)
+        with tabs[3]:
+            if tabs[3].open:
+                views.run_tab(state.system, state.system_key)
     else:
         st.info("Choose a demo system or open a system file in the sidebar.")
         st.caption(f":material/health_and_safety: {CAUTION}")

@@ -162,7 +162,7 @@ def default_channels(system: lumped.System, channel_names) -> list[str]:
     return [w for w in wanted if w in names]
 
 
-def figure_items(system: lumped.System) -> tuple[list[str], list[str], list[str]] | None:
+def figure_items(system: lumped.System) -> tuple[tuple[str, ...], ...] | None:
     """Items of the run's figures table: ``None`` (the library's default, every body,
     travel and load element) for systems up to :data:`FIGURE_ITEM_LIMIT` items, else
     the top and the lowest body, the first and last travel element and the first two
@@ -171,9 +171,9 @@ def figure_items(system: lumped.System) -> tuple[list[str], list[str], list[str]
     if len(bodies) + len(travel) + len(loads) <= FIGURE_ITEM_LIMIT:
         return None
     top = top_body(system)
-    chosen_bodies = list(dict.fromkeys([top, *bodies[:1]]))
-    chosen_travel = list(dict.fromkeys(travel[:1] + travel[-1:]))
-    return chosen_bodies, chosen_travel, loads[:2]
+    chosen_bodies = tuple(dict.fromkeys([top, *bodies[:1]]))
+    chosen_travel = tuple(dict.fromkeys(travel[:1] + travel[-1:]))
+    return chosen_bodies, chosen_travel, tuple(loads[:2])
 
 
 def time_text(seconds: float) -> str:

@@ -276,6 +276,10 @@ def system_graph(system: lumped.System, summary: lumped.SystemSummary | None = N
 LINE_COLOURS = ["#1f5a8c", "#b4582a", "#3d7d4a", "#5e4b8b", "#8c6d1f", "#2a8a8f", "#8c2f4f",
                 "#4d5660"]  # fmt: skip
 PEAK_COLOUR = "#b4582a"
+#: Peaks labelled with their frequency (the largest); the others are marked only.
+PEAK_LABELS = 8
+#: Decades of |H| shown below its largest value.
+MAGNITUDE_DECADES = 10
 #: Time plots keep at most about this many points per channel (every k-th sample).
 PLOT_POINTS = 20_000
 
@@ -347,19 +351,23 @@ def response_plot(transfer) -> go.Figure:
     peaks = transfer.peaks
     if peaks:
         px = [p.frequency_hz for p in peaks]
+        # Label the largest few; many peaks (long chains) would bury the curve in text.
+        labelled = set(sorted(range(len(peaks)), key=lambda k: -peaks[k].magnitude)[:PEAK_LABELS])
+        small = len(peaks) > 4 * PEAK_LABELS
         fig.add_trace(
             go.Scatter(
                 x=px, y=[p.magnitude for p in peaks], mode="markers+text", name="peaks",
-                text=[f"{p.frequency_hz:.4g} Hz" for p in peaks], textposition="top center",
-                textfont={"size": 11, "color": PEAK_COLOUR},
-                marker={"color": PEAK_COLOUR, "size": 9, "symbol": "diamond"},
+                text=[f"{p.frequency_hz:.4g} Hz" if k in labelled else "" for k, p in enumerate(peaks)],
+                textposition="top center", textfont={"size": 11, "color": PEAK_COLOUR},
+                marker={"color": PEAK_COLOUR, "size": 5 if small else 9, "symbol": "diamond"},
                 hovertemplate=f"peak %{{x:.5g}} Hz: %{{y:.4g}} {unit}<extra></extra>",
             ),
             row=1, col=1,
         )  # fmt: skip
         fig.add_trace(
             go.Scatter(x=px, y=[p.phase_deg for p in peaks], mode="markers", name="peak phase",
-                       showlegend=False, marker={"color": PEAK_COLOUR, "size": 7, "symbol": "diamond"},
+                       showlegend=False,
+                       marker={"color": PEAK_COLOUR, "size": 4 if small else 7, "symbol": "diamond"},
                        hovertemplate="peak %{x:.5g} Hz: %{y:.1f}°<extra></extra>"),
             row=2, col=1,
         )  # fmt: skip
@@ -367,8 +375,17 @@ def response_plot(transfer) -> go.Figure:
     fig.update_layout(hovermode="closest")
     fig.update_xaxes(type="log")
     fig.update_xaxes(title={"text": "frequency [Hz]", "font": {"size": 12}}, row=2, col=1)
+    fig.update_xaxes(dtick="D2")
     fig.update_yaxes(type="log", title={"text": f"|H| [{_text(unit)}]", "font": {"size": 12}},
                      row=1, col=1)  # fmt: skip
+    shown = magnitude[magnitude > 0]
+    if len(shown):
+        top, bottom = math.log10(np.max(shown)), math.log10(np.min(shown))
+        if top - bottom > MAGNITUDE_DECADES:  # a response that falls to round-off
+            bottom = top - MAGNITUDE_DECADES
+            fig.update_yaxes(range=[bottom, top + 0.5], row=1, col=1)
+        if top - bottom > 2.5:
+            fig.update_yaxes(dtick=1 if top - bottom <= 12 else 2, row=1, col=1)
     fig.update_yaxes(title={"text": "phase [°]", "font": {"size": 12}}, range=[-185, 185],
                      tickvals=[-180, -90, 0, 90, 180], row=2, col=1)  # fmt: skip
     return fig

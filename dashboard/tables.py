@@ -17,6 +17,7 @@ from lumped.units import display
 
 __all__ = [
     "NO_VALUE",
+    "as_text",
     "bodies_frame",
     "check_modes_frame",
     "elements_frame",
@@ -198,6 +199,15 @@ def number_text(value: float | None, digits: int = 4) -> str:
     if math.isinf(value):
         return "∞" if value > 0 else "−∞"
     return f"{value:.{digits}g}"
+
+
+def as_text(frame: pd.DataFrame, columns, digits: int = 4) -> pd.DataFrame:
+    """A copy of ``frame`` with the number ``columns`` as text of ``digits``
+    significant digits (values of very different sizes stay readable)."""
+    out = frame.copy()
+    for column in columns:
+        out[column] = [number_text(None if v is None else float(v), digits) for v in out[column]]
+    return out
 
 
 def check_modes_frame(check) -> pd.DataFrame:

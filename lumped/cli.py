@@ -10,8 +10,8 @@ from __future__ import annotations
 import argparse
 import json
 import math
+import os
 import re
-import subprocess
 import sys
 from pathlib import Path
 
@@ -89,7 +89,7 @@ def _add_analysis_commands(commands) -> None:
     run.add_argument("--out", help="output file, .csv or .parquet (replaced atomically)")
     run.add_argument("--convergence", action="store_true",
                      help="also run at dt/2, dt/4, dt/8 and report the observed order")
-    run.add_argument("--quiet", action="store_true", help="no progress bar")
+    run.add_argument("--quiet", action="store_true", help="print nothing but errors (no progress bar, no summary)")
     run.add_argument("--json", action="store_true", help="a summary of the run as JSON on stdout")
     run.add_argument("--figures", action="store_true",
                      help="ride, travel and load figures of the run (ISO 2631-1 weighted acceleration, VDV, ...)")
@@ -172,7 +172,10 @@ def cmd_serve(args) -> int:
     command = [sys.executable, "-m", "streamlit", "run", str(app)]
     if args.port:
         command += ["--server.port", str(args.port)]
-    return subprocess.call(command, cwd=app.parent.parent)
+    # Become the server (same process id), so that stopping `lumped serve` stops it.
+    os.chdir(app.parent.parent)
+    os.execv(sys.executable, command)
+    return EXIT_OK  # not reached
 
 
 def cmd_modes(args) -> int:
@@ -224,8 +227,9 @@ def cmd_run(args) -> int:
     from lumped.simulate import simulate
 
     system = _load(args.file)
-    if not args.out and not args.convergence:
-        print("lumped run: give --out FILE.csv or FILE.parquet (or --convergence)", file=sys.stderr)
+    if not (args.out or args.convergence or args.figures or args.json):
+        print("lumped run: give --out FILE.csv or FILE.parquet (or --figures, --convergence, --json)",
+              file=sys.stderr)  # fmt: skip
         return EXIT_BAD_INPUT
     if args.out and Path(args.out).suffix.lower() not in (".csv", ".parquet"):
         print(f"lumped run: --out must end in .csv or .parquet, got {args.out!r}", file=sys.stderr)
@@ -250,6 +254,7 @@ def cmd_run(args) -> int:
         "samples": len(result.time),
         "events": [{"time": e.time, "element": e.element, "kind": e.kind} for e in result.events],
         "energy_balance_error": float(abs(result.balance_error).max()),
+        "energy_balance_ratio": result.balance_ratio,
         "out": args.out,
     }
     if args.convergence:
@@ -382,6 +387,13 @@ def format_summary(summary) -> str:
             ],
         )  # fmt: skip
     )
+    if summary.inputs:
+        lines += ["", "Inputs"]
+        lines.append(table(["id", "kind", "values"], [[i["id"], i["kind"], i["values"]] for i in summary.inputs]))
+    if summary.forces:
+        lines += ["", "Forces"]
+        lines.append(table(["id", "on", "input", "scale"],
+                           [[f["id"], f["on"], f["input"], f"{f['scale']:g}"] for f in summary.forces]))  # fmt: skip
     if summary.static_error:
         lines += ["", f"No static equilibrium: {summary.static_error}"]
     return "\n".join(lines)
@@ -446,26 +458,37 @@ def format_check(name: str, verdict) -> str:
         lines.append(f"  note: {note}")
     rows = [
         [
-            str(k + 1), f"{m.natural_frequency_hz:.5g} Hz", _ratio(m.damping_ratio),
+            str(k + 1), m.state, f"{m.natural_frequency_hz:.5g} Hz", _ratio(m.damping_ratio),
             _seconds(m.max_stable_dt if m.max_stable_dt > 0 else None), f"{m.spectral_radius:.9f}",
             _ratio(m.growth_over_run, 6), _ratio(m.numerical_damping_ratio),
             "-" if m.period_error is None else f"{m.period_error:+.3e}",
         ]
         for k, m in enumerate(verdict.modes)
     ]  # fmt: skip
-    lines += ["", table(["mode", "frequency", "damping ratio", "max stable dt", "radius/step",
+    lines += ["", table(["mode", "state", "frequency", "damping ratio", "max stable dt", "radius/step",
                          "growth over run", "numerical damping", "period error"], rows)]  # fmt: skip
     return "\n".join(lines)
 
 
 def format_run(summary: dict) -> str:
+    from lumped.simulate import BALANCE_WARNING
+
     lines = [
         f"{summary['stepper']} at dt = {_seconds(summary['dt'])} over {summary['duration']:g} s: "
         f"{summary['status']} ({summary['steps']:,} steps, {summary['samples']:,} samples)"
     ]
     if summary["message"]:
         lines.append(f"  {summary['message']}")
-    lines.append(f"  energy balance error  {summary['energy_balance_error']:.3e} J (largest over the run)")
+    ratio = summary["energy_balance_ratio"]
+    lines.append(
+        f"  energy balance error  {summary['energy_balance_error']:.3e} J (largest over the run; "
+        f"{ratio:.2%} of the energy through the system)"
+    )
+    if ratio > BALANCE_WARNING and summary["status"] == "completed":
+        lines.append(
+            f"  warning: the energy balance is off by {ratio:.1%}: this step is too large for an "
+            "accurate run; `lumped check` gives a recommended step"
+        )
     if summary["out"]:
         lines.append(f"  written to            {summary['out']}")
     events = summary["events"]

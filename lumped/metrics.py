@@ -326,7 +326,7 @@ def run_figures(
                                f"{COMMON}, |deflection − static| > gap {gap:g} m, {span}", e, "run"))  # fmt: skip
     for e in chosen_l:
         rows += _run_load_rows(e, np.asarray(result.force[:, result.element_ids.index(e)], dtype=float),
-                               static.force_in(e), weights, span)  # fmt: skip
+                               static.force_in(e), weights, span, _one_sided(system, e))  # fmt: skip
     return rows
 
 
@@ -337,19 +337,29 @@ def _window_weights(time: np.ndarray, window: np.ndarray) -> np.ndarray:
     return out
 
 
-def _run_load_rows(element: str, force: np.ndarray, static_force: float, weights: np.ndarray, span: str) -> list[Figure]:
+def _one_sided(system: System, element: str) -> bool:
+    """True for a spring that can lift off (acts in compression or tension only)."""
+    spring = system.springs.get(element)
+    return isinstance(spring, Spring) and spring.acts != "both"
+
+
+def _run_load_rows(element: str, force: np.ndarray, static_force: float, weights: np.ndarray, span: str,
+                   one_sided: bool) -> list[Figure]:  # fmt: skip
     dynamic = force - static_force
     sigma = rms(dynamic, weights)
     rows = [Figure("dynamic_load_rms", "RMS dynamic load", sigma, "N", f"{COMMON}, total − static force, {span}",
                    element, "run")]  # fmt: skip
     if static_force != 0:
+        rows.append(Figure("dynamic_load_ratio", "RMS dynamic load / static load", sigma / abs(static_force), "1",
+                           f"{COMMON}, static load {static_force:.6g} N, {span}", element, "run"))  # fmt: skip
+    if static_force != 0:
+        # A one-sided spring (a tyre) lifts off; a two-way one (a mount) has its force reversed.
         lifted = np.sign(force) * np.sign(static_force) <= 0
+        key, name = ("lift_off", "in lift-off") if one_sided else ("force_reversal", "with the force reversed")
         rows += [
-            Figure("dynamic_load_ratio", "RMS dynamic load / static load", sigma / abs(static_force), "1",
-                   f"{COMMON}, static load {static_force:.6g} N, {span}", element, "run"),
-            Figure("lift_off_time", "time in lift-off", float(np.sum(weights[lifted])), "s",
+            Figure(f"{key}_time", f"time {name}", float(np.sum(weights[lifted])), "s",
                    f"{COMMON}, total force not of its static sign, {span}", element, "run"),
-            Figure("lift_off_share", "share of time in lift-off", float(np.sum(weights[lifted]) / np.sum(weights)), "1",
+            Figure(f"{key}_share", f"share of time {name}", float(np.sum(weights[lifted]) / np.sum(weights)), "1",
                    f"{COMMON}, total force not of its static sign, {span}", element, "run"),
         ]  # fmt: skip
     return rows
@@ -515,11 +525,13 @@ def road_figures(
         static_force = static.force_in(e)
         rows.append(Figure("dynamic_load_rms", "RMS dynamic load", sigma, "N", f"{COMMON}, {spectral}", e, "road"))
         if static_force != 0:
-            rows += [
-                Figure("dynamic_load_ratio", "RMS dynamic load / static load", sigma / abs(static_force), "1",
-                       f"{COMMON}, static load {static_force:.6g} N, {spectral}", e, "road"),
-                Figure("lift_off_share", "share of time in lift-off",
-                       gaussian_exceedance(abs(static_force), sigma, two_sided=False), "1",
-                       f"{COMMON}, Gaussian response, P(dynamic load beyond the static load), {spectral}", e, "road"),
-            ]  # fmt: skip
+            rows.append(Figure("dynamic_load_ratio", "RMS dynamic load / static load", sigma / abs(static_force),
+                               "1", f"{COMMON}, static load {static_force:.6g} N, {spectral}", e, "road"))  # fmt: skip
+        if static_force != 0:
+            key, name = ("lift_off", "in lift-off") if _one_sided(system, e) else (
+                "force_reversal", "with the force reversed")
+            rows.append(Figure(f"{key}_share", f"share of time {name}",
+                               gaussian_exceedance(abs(static_force), sigma, two_sided=False), "1",
+                               f"{COMMON}, Gaussian response, P(dynamic load beyond the static load), {spectral}",
+                               e, "road"))  # fmt: skip
     return rows

@@ -8,11 +8,22 @@ from dataclasses import dataclass
 import networkx as nx
 
 from lumped.assemble import assemble
-from lumped.model import Damper, Inerter, Spring, System
+from lumped.model import (
+    BumpInput,
+    Damper,
+    HarmonicInput,
+    Inerter,
+    RoadInput,
+    Spring,
+    StepInput,
+    SweepInput,
+    System,
+    TableInput,
+)
 from lumped.static import StaticError, StaticState, static_equilibrium
 from lumped.units import display
 
-__all__ = ["SystemSummary", "summarize", "element_values", "node_levels"]
+__all__ = ["SystemSummary", "summarize", "element_values", "input_values", "node_levels"]
 
 
 @dataclass(frozen=True)
@@ -26,6 +37,8 @@ class SystemSummary:
     bodies: list[dict]
     supports: list[dict]
     elements: list[dict]
+    inputs: list[dict]
+    forces: list[dict]
     static: StaticState | None
     static_error: str | None
 
@@ -43,6 +56,8 @@ class SystemSummary:
                 e["id"]: {k: v for k, v in e.items() if k not in ("id", "values")}
                 for e in self.elements
             },
+            "inputs": {i["id"]: {k: v for k, v in i.items() if k not in ("id", "values")} for i in self.inputs},
+            "forces": {f["id"]: {k: v for k, v in f.items() if k != "id"} for f in self.forces},
         }
 
 
@@ -70,6 +85,31 @@ def element_values(element) -> str:
         )
     if isinstance(element, Inerter):
         return display(element.inertance, "mass")
+    return ""
+
+
+def input_values(item) -> str:
+    """An input's parameters as one line of text with units."""
+    unit = {"length": "length", "force": "force"}.get(getattr(item, "amplitude_kind", None))
+
+    def size(value: float) -> str:
+        return display(value, unit) if unit else f"{value:.4g}"
+
+    if isinstance(item, StepInput):
+        return f"step of {size(item.amplitude)} at {display(item.time, 'time')}"
+    if isinstance(item, BumpInput):
+        return (f"bump {display(item.height, 'length')} high, {display(item.length, 'length')} long, "
+                f"at {display(item.speed, 'velocity')} from {display(item.time, 'time')}")  # fmt: skip
+    if isinstance(item, HarmonicInput):
+        phase = f", phase {item.phase:.3g} rad" if item.phase else ""
+        return f"{size(item.amplitude)} at {display(item.frequency, 'frequency')}{phase}"
+    if isinstance(item, SweepInput):
+        return (f"{size(item.amplitude)} swept {display(item.start, 'frequency')} → "
+                f"{display(item.stop, 'frequency')} ({item.spacing}) over {display(item.duration, 'time')}")  # fmt: skip
+    if isinstance(item, RoadInput):
+        return f"ISO 8608 class {item.road_class} road at {display(item.speed, 'velocity')}, seed {item.seed}"
+    if isinstance(item, TableInput):
+        return f"table {item.file!r}: {len(item.times)} rows over {display(item.times[-1] - item.times[0], 'time')}"
     return ""
 
 
@@ -121,8 +161,22 @@ def summarize(system: System) -> SystemSummary:
         if isinstance(e, Damper) and e.curve is not None:
             row["curve"] = [list(p) for p in e.curve]
         elements.append(row)
+    inputs = [
+        {
+            "id": i.id,
+            "kind": i.kind,
+            "values": input_values(i),
+            **{k: v for k, v in vars(i).items() if k not in ("id", "units", "times", "values")},
+        }
+        for i in system.inputs.values()
+    ]
+    forces = [
+        {"id": f.id, "on": f.on, "input": f.input, "scale": f.scale} for f in system.forces.values()
+    ]
     return SystemSummary(
         name=system.name,
+        inputs=inputs,
+        forces=forces,
         description=system.description,
         gravity=system.gravity,
         bodies=bodies,

@@ -41,6 +41,9 @@ CHUNK_STEPS = 8192
 DIVERGENCE_FACTOR = 1e6
 #: Default cap on the memory a run's output may take: a quarter of the machine's.
 MEMORY_FRACTION = 0.25
+#: Energy balance error, as a fraction of the energy through the system, above which a
+#: finished run is flagged as inaccurate.
+BALANCE_WARNING = 0.01
 #: Ends of steps read the inputs this fraction of a step early (their left limits).
 LEFT_LIMIT = 1e-9
 #: Dense mass matrices (inerters between bodies) up to this many bodies.
@@ -119,6 +122,20 @@ class RunResult:
         return total - total[0] - (self.support_work - self.support_work[0]) - (
             self.force_work - self.force_work[0]
         )
+
+    @property
+    def balance_ratio(self) -> float:
+        """Largest |balance error| over the run ÷ the energy that passed through the
+        system (the largest of kinetic + stored, dissipated, and work done); a ratio
+        above :data:`BALANCE_WARNING` says the step was too large for an accurate run."""
+        through = max(
+            float(np.max(self.kinetic + self.stored - self.kinetic[0] - self.stored[0], initial=0.0)),
+            float(np.max(np.abs(self.dissipated), initial=0.0)),
+            float(np.max(np.abs(self.support_work) + np.abs(self.force_work), initial=0.0)),
+            float(self.kinetic[0] + self.stored[0]),
+        )
+        error = float(np.max(np.abs(self.balance_error), initial=0.0))
+        return error / through if through > 0 else (0.0 if error == 0 else math.inf)
 
     @property
     def diverged(self) -> bool:
@@ -623,7 +640,7 @@ class _Engine:
             names = ", ".join(self.m.element_ids[i] for i in _nonlinear_indices(self.m))
             raise RunError(
                 f"{self.stepper.id} runs linear systems only; this system has nonlinear "
-                f"elements ({names}); use an explicit stepper (rk4, rk3, heun, symplectic-euler)"
+                f"elements ({names}); use an explicit Runge–Kutta stepper (rk4, rk38, rk3, heun, euler) or symplectic-euler"
             )
         if self.m.n > DENSE_LIMIT:
             raise RunError(

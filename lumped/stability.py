@@ -24,10 +24,12 @@ for every mode whatever its damping, and a stepper that is unstable on undamped 
 from __future__ import annotations
 
 import functools
+import dataclasses
 import math
 from dataclasses import dataclass, field
 
 import numpy as np
+import scipy.sparse as sp
 from scipy.optimize import minimize_scalar
 
 from lumped.assemble import DENSE_LIMIT, Matrices
@@ -50,6 +52,10 @@ __all__ = [
 STABILITY_SAFETY = 0.5
 #: … and gives at least this many steps per period of the highest mode considered.
 STEPS_PER_PERIOD = 20
+#: Accuracy rule of the recommended step: |ζ_numerical − ζ| ≤ a·ζ + b, |period error| ≤ p.
+DAMPING_TOLERANCE = (0.05, 0.002)
+PERIOD_TOLERANCE = 0.01
+MAX_ACCURACY_HALVINGS = 30
 #: Ω range scanned for the first unstable step (Ω = hω), and points per decade.
 SCAN_RANGE = (1e-14, 1e4)
 SCAN_POINTS_PER_DECADE = 40
@@ -140,8 +146,10 @@ def max_stable_step(stepper: Stepper, eigenvalues) -> np.ndarray:
 class ModeCheck:
     """One mode at the chosen step: frequency (Hz), damping ratio, its step limit (s),
     spectral radius per step, growth over the run, and the stepper's numerical
-    damping ratio and period error (T_numerical / T − 1) on it."""
+    damping ratio and period error (T_numerical / T − 1) on it. ``state`` says which
+    linearisation it belongs to ("linearised", "stiffest contact state" or "bound")."""
 
+    state: str
     natural_frequency_hz: float
     damping_ratio: float
     max_stable_dt: float
@@ -235,9 +243,22 @@ def check_step(
         raise StepError("the system has no bodies")
     notes = []
     bound_only = matrices.n > DENSE_LIMIT
+    states = None
     if not bound_only:
         eig = damped_eigenvalues(matrices)
+        states = ["linearised"] * len(eig)
         source = "exact eigenvalues"
+        stiff = stiffest_state(matrices)
+        if stiff is not None:
+            extra = damped_eigenvalues(stiff)
+            eig = np.concatenate([eig, extra])
+            states += ["stiffest contact state"] * len(extra)
+            notes.append(
+                "linearised at static equilibrium (end stops open, asymmetric and tabulated "
+                "dampers at their slope through zero); the limit also covers the stiffest "
+                "contact state (every end stop engaged, every nonlinear damper at its largest "
+                "slope), whose modes are listed after the others"
+            )
     else:
         top = stiffest_mode(matrices)
         # Every mode has |λ| ≤ the bound, but its damping ratio is unknown: the bound at
@@ -272,6 +293,7 @@ def check_step(
         num_zeta, period = _numerical_behaviour(roots[k], eig[k], dt) if not rigid[k] else (None, None)
         modes.append(
             ModeCheck(
+                state=states[k] if states else "bound",
                 natural_frequency_hz=float(omega[k] / (2 * math.pi)),
                 damping_ratio=float(zeta[k]),
                 max_stable_dt=float(limits[k]),
@@ -288,7 +310,8 @@ def check_step(
     else:
         limiting, system_limit = None, math.inf
     stable = not bool(unstable_now.any())
-    recommended, rule = _recommend(system_limit, omega[finite], up_to_hz, bound_only)
+    linear = np.array([st == "linearised" for st in states]) if states else np.zeros(len(eig), bool)
+    recommended, rule = _recommend(stepper, system_limit, eig[finite & linear], up_to_hz, bound_only)
     if system_limit == 0.0 and bound_only:
         notes.append(
             f"no positive step can be guaranteed stable with {stepper.id}: only a bound on the "
@@ -354,18 +377,22 @@ def _numerical_behaviour(root: complex, lam: complex, dt: float):
     return num_zeta, period
 
 
-def _recommend(limit: float, omega: np.ndarray, up_to_hz: float | None, bound_only: bool):
-    """Recommended step and the rule that gave it."""
+def _recommend(stepper: Stepper, limit: float, eig: np.ndarray, up_to_hz: float | None, bound_only: bool):
+    """Recommended step and the rule that gave it: the smaller of the safety fraction of
+    the stability limit and the steps-per-period rule, halved until the numerical
+    damping and period error on every mode considered are within tolerance."""
     candidates = []
     rule = []
     if math.isfinite(limit) and limit > 0:
         candidates.append(STABILITY_SAFETY * limit)
         rule.append(f"{STABILITY_SAFETY:g} × the stability limit")
-    considered = omega[omega > 0]
+    omega = np.abs(eig)
+    keep = omega > 0
     if up_to_hz is not None:
-        considered = considered[considered <= 2 * math.pi * up_to_hz]
+        keep &= omega <= 2 * math.pi * up_to_hz
+    considered = eig[keep]
     if len(considered) and not bound_only:
-        highest = float(np.max(considered))
+        highest = float(np.max(np.abs(considered)))
         candidates.append(2 * math.pi / highest / STEPS_PER_PERIOD)
         scope = f"modes up to {up_to_hz:g} Hz" if up_to_hz is not None else "all modes"
         rule.append(
@@ -374,4 +401,59 @@ def _recommend(limit: float, omega: np.ndarray, up_to_hz: float | None, bound_on
         )
     if not candidates:
         return math.nan, "no finite rule applies"
-    return float(min(candidates)), "the smaller of " + " and ".join(rule) if len(rule) > 1 else rule[0]
+    h = float(min(candidates))
+    text = "the smaller of " + " and ".join(rule) if len(rule) > 1 else rule[0]
+    if len(considered) and not bound_only:
+        halvings = 0
+        while not _accurate(stepper, considered, h) and halvings < MAX_ACCURACY_HALVINGS:
+            h *= 0.5
+            halvings += 1
+        text += (
+            f", halved until every mode considered has its damping ratio within "
+            f"{DAMPING_TOLERANCE[0]:g}·ζ + {DAMPING_TOLERANCE[1]:g} and its period within "
+            f"{PERIOD_TOLERANCE:.0%}"
+        )
+        if halvings:
+            text += f" ({halvings} halving{'s' if halvings > 1 else ''})"
+    return h, text
+
+
+def _accurate(stepper: Stepper, eig: np.ndarray, h: float) -> bool:
+    """True when the stepper's numerical damping and period error at step ``h`` are
+    within tolerance on every given mode."""
+    omega = np.abs(eig)
+    zeta = -eig.real / omega
+    _, roots = _log_radius_and_root(stepper, h * omega, zeta)
+    for root, lam in zip(roots, eig, strict=True):
+        num_zeta, period = _numerical_behaviour(root, lam, h)
+        true_zeta = float(-lam.real / abs(lam))
+        if num_zeta is None or abs(num_zeta - true_zeta) > DAMPING_TOLERANCE[0] * true_zeta + DAMPING_TOLERANCE[1]:
+            return False
+        if period is not None and abs(period) > PERIOD_TOLERANCE:
+            return False
+    return True
+
+
+def stiffest_state(matrices: Matrices) -> Matrices | None:
+    """The matrices of the stiffest contact state: every end stop engaged (its gap
+    stiffness added) and every asymmetric or tabulated damper at its largest slope;
+    None for a linear system."""
+    nl = matrices.nonlinear
+    if not (len(nl.end_stop_index) or len(nl.asymmetric_index) or len(nl.curve_index)):
+        return None
+    stiffness = matrices.stiffness.copy()
+    stiffness[nl.end_stop_index] += nl.end_stop_stiffness
+    damping = matrices.damping.copy()
+    damping[nl.asymmetric_index] = np.maximum(nl.asymmetric_rebound, nl.asymmetric_compression)
+    for j, e in enumerate(nl.curve_index):
+        v = nl.curve_velocity[nl.curve_offset[j]:nl.curve_offset[j + 1]]
+        f = nl.curve_force[nl.curve_offset[j]:nl.curve_offset[j + 1]]
+        damping[e] = float(np.max(np.diff(f) / np.diff(v)))
+    D, Dt = matrices.D, matrices.D.T.tocsr()
+    return dataclasses.replace(
+        matrices,
+        stiffness=stiffness,
+        damping=damping,
+        K=(Dt @ sp.diags_array(stiffness) @ D).tocsr(),
+        C=(Dt @ sp.diags_array(damping) @ D).tocsr(),
+    )

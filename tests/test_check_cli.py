@@ -134,15 +134,22 @@ def test_quarter_car_rk4_report():
         and data["dt"] == pytest.approx(2e-4, rel=1e-15)
         and data["stable"] is True
     )
-    # eigenvalues from the linearised corner built here (damper: mean of rebound and
-    # compression, common practice), with python-control
+    # Eigenvalues of the corner built here, with python-control, in its two states:
+    # linearised at rest (end stop open, damper at the mean of rebound and compression,
+    # common practice) and the stiffest contact state (end stop of 400 kN/m engaged,
+    # damper at its larger coefficient); the limit must hold in both.
     M = np.diag([42.0, 380.0])
-    ks, kt, cs = 24e3, 230e3, 0.5 * (2.4e3 + 1.3e3)
-    K = np.array([[ks + kt, -ks], [-ks, ks]])
-    C = np.array([[cs, -cs], [-cs, cs]])
-    A = np.block([[np.zeros((2, 2)), np.eye(2)], [-np.linalg.solve(M, K), -np.linalg.solve(M, C)]])
-    poles = np.asarray(control.ss(A, np.zeros((4, 1)), np.eye(4), np.zeros((4, 1))).poles())
-    poles = poles[poles.imag > 0]
+    kt = 230e3
+
+    def poles_of(ks, cs):
+        K = np.array([[ks + kt, -ks], [-ks, ks]])
+        C = np.array([[cs, -cs], [-cs, cs]])
+        A = np.block([[np.zeros((2, 2)), np.eye(2)], [-np.linalg.solve(M, K), -np.linalg.solve(M, C)]])
+        p = np.asarray(control.ss(A, np.zeros((4, 1)), np.eye(4), np.zeros((4, 1))).poles())
+        return p[p.imag > 0]
+
+    linear = poles_of(24e3, 0.5 * (2.4e3 + 1.3e3))
+    poles = np.concatenate([linear, poles_of(24e3 + 400e3, 2.4e3)])
     omega = np.abs(poles)
     zeta = -poles.real / omega
     limits = np.array([rk_limit("rk4", z) for z in zeta]) / omega
@@ -152,10 +159,11 @@ def test_quarter_car_rk4_report():
         omega[k] / TWO_PI, rel=1e-10
     )
     assert data["limiting_mode"]["damping_ratio"] == pytest.approx(zeta[k], rel=1e-9)
-    expected_recommended = min(
-        STABILITY_SAFETY * limits[k], TWO_PI / omega.max() / STEPS_PER_PERIOD
-    )
-    assert data["recommended_dt"] == pytest.approx(expected_recommended, rel=1e-9)
+    # The recommended step: the smaller of the safety fraction of the limit and the
+    # steps-per-period rule on the linearised modes, halved a whole number of times.
+    first = min(STABILITY_SAFETY * limits[k], TWO_PI / np.abs(linear).max() / STEPS_PER_PERIOD)
+    halvings = math.log2(first / data["recommended_dt"])
+    assert halvings == pytest.approx(round(halvings), abs=1e-9) and round(halvings) >= 0
     # growth over the run: the largest of |R(hλ)|^steps over the modes
     steps = steps_of(2e-4, 3.0)
     assert data["steps"] == steps
