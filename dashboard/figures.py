@@ -327,6 +327,20 @@ def mode_shape(mode, number: int) -> go.Figure:
     return fig
 
 
+def _peaks_to_label(peaks) -> set[int]:
+    """Indices of the peaks labelled with their frequency: the largest first, at most
+    :data:`PEAK_LABELS`, none within a factor 1.7 in frequency of one already labelled
+    (many peaks of a long chain would bury the curve in text)."""
+    chosen: list[int] = []
+    for k in sorted(range(len(peaks)), key=lambda k: -peaks[k].magnitude):
+        f = peaks[k].frequency_hz
+        if all(not (f / 1.7 < peaks[j].frequency_hz < f * 1.7) for j in chosen):
+            chosen.append(k)
+        if len(chosen) == PEAK_LABELS:
+            break
+    return set(chosen)
+
+
 def response_plot(transfer) -> go.Figure:
     """|H(f)| on log–log axes above its phase (degrees, log frequency) for a
     :class:`lumped.frequency.Transfer`; its peaks are marked on both."""
@@ -351,8 +365,7 @@ def response_plot(transfer) -> go.Figure:
     peaks = transfer.peaks
     if peaks:
         px = [p.frequency_hz for p in peaks]
-        # Label the largest few; many peaks (long chains) would bury the curve in text.
-        labelled = set(sorted(range(len(peaks)), key=lambda k: -peaks[k].magnitude)[:PEAK_LABELS])
+        labelled = _peaks_to_label(peaks)
         small = len(peaks) > 4 * PEAK_LABELS
         fig.add_trace(
             go.Scatter(
@@ -381,11 +394,13 @@ def response_plot(transfer) -> go.Figure:
     shown = magnitude[magnitude > 0]
     if len(shown):
         top, bottom = math.log10(np.max(shown)), math.log10(np.min(shown))
-        if top - bottom > MAGNITUDE_DECADES:  # a response that falls to round-off
-            bottom = top - MAGNITUDE_DECADES
-            fig.update_yaxes(range=[bottom, top + 0.5], row=1, col=1)
+        # At most MAGNITUDE_DECADES below the top (a response that falls to round-off
+        # would squash the rest), and room above the top for the peak labels.
+        bottom = max(bottom, top - MAGNITUDE_DECADES)
+        span = max(top - bottom, 0.5)
+        fig.update_yaxes(range=[bottom - 0.05 * span, top + 0.15 * span], row=1, col=1)
         if top - bottom > 2.5:
-            fig.update_yaxes(dtick=1 if top - bottom <= 12 else 2, row=1, col=1)
+            fig.update_yaxes(dtick=1 if top - bottom <= 7 else 2, row=1, col=1)
     fig.update_yaxes(title={"text": "phase [°]", "font": {"size": 12}}, range=[-185, 185],
                      tickvals=[-180, -90, 0, 90, 180], row=2, col=1)  # fmt: skip
     return fig

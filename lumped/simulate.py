@@ -280,9 +280,16 @@ class _Inputs:
         u = np.zeros(shape + (ns,))
         ud = np.zeros(shape + (ns,))
         udd = np.zeros(shape + (ns,))
+        done: dict[tuple[int, float], int] = {}  # supports following the same motion share it
         for s, (signal, delay) in enumerate(self.supports):
-            if signal is not None:
+            if signal is None:
+                continue
+            same = done.get((id(signal), delay))
+            if same is None:
                 u[..., s], ud[..., s], udd[..., s] = signal.motion(t - delay)
+                done[(id(signal), delay)] = s
+            else:
+                u[..., s], ud[..., s], udd[..., s] = u[..., same], ud[..., same], udd[..., same]
         F = np.zeros(shape + (nf,))
         for j, signal in enumerate(self.forces):
             F[..., j] = signal.value(t)
@@ -305,12 +312,12 @@ class _Inputs:
 
 
 def _inputs(system: System, matrices: Matrices) -> _Inputs:
+    signals = {key: signal_for(system, key) for key in system.inputs}
     supports = []
     for s in matrices.support_ids:
         support = system.supports[s]
-        signal = signal_for(system, support.motion) if support.motion else None
-        supports.append((signal, support.delay))
-    forces = [signal_for(system, system.forces[f].input) for f in matrices.force_ids]
+        supports.append((signals[support.motion] if support.motion else None, support.delay))
+    forces = [signals[system.forces[f].input] for f in matrices.force_ids]
     return _Inputs(supports, forces, np.array([system.forces[f].scale for f in matrices.force_ids]))
 
 

@@ -1,0 +1,68 @@
+"""Benchmark: 1 000 variants of the corner (suspension stiffness and damping varied),
+RK4, 10 s at 1 ms, stepped together by one call (issue: time simulation engine).
+
+Targets: at least 10× faster than scipy's solve_ivp (RK45, rtol 1e-6) on the same
+variants stacked into one system, and at least 20× faster than the engine run
+variant by variant (timed on 40 variants and scaled). Everything runs in this process.
+
+Run: python benchmarks/variants_corner.py [VARIANTS]
+"""
+
+import sys
+import time
+
+import numpy as np
+from scipy.integrate import solve_ivp
+
+import lumped
+from corner_rk4 import linear_corner
+from lumped.excitation import signal_for
+from lumped.simulate import simulate
+from lumped.variants import _stacked, simulate_variants, variant_system
+
+TARGET_IVP, TARGET_SINGLE = 10.0, 20.0
+
+
+def main(count: int = 1000) -> None:
+    base = linear_corner()
+    changes = {
+        "springs.suspension_spring.stiffness": np.linspace(16e3, 32e3, count),
+        "dampers.suspension_damper.coefficient": np.linspace(1.2e3, 2.8e3, count),
+    }
+    settings = dict(dt=1e-3, duration=10.0, output_rate=100.0)
+    simulate_variants(base, {k: v[:2] for k, v in changes.items()}, "rk4", **settings)  # compile
+    start = time.perf_counter()
+    runs = simulate_variants(base, changes, "rk4", **settings)
+    batch = time.perf_counter() - start
+
+    sample = 40
+    variants = [variant_system(base, {k: v[i] for k, v in changes.items()}) for i in range(sample)]
+    start = time.perf_counter()
+    for v in variants:
+        simulate(v, "rk4", check=False, **settings)
+    one_by_one = (time.perf_counter() - start) / sample * count
+
+    stacked = _stacked([variant_system(base, {k: v[i] for k, v in changes.items()}) for i in range(count)])
+    space = lumped.state_space(lumped.assemble(stacked), dense=False)
+    bump = signal_for(base, "speed_bump")  # the one support's motion, shared by every variant
+    w = np.zeros(space.B.shape[1])
+
+    def rhs(t, y):
+        w[0], w[1], w[2] = bump.value(t), bump.rate(t), bump.rate2(t)
+        return space.A @ y + space.B @ w
+
+    start = time.perf_counter()
+    solve_ivp(rhs, (0, 10.0), np.zeros(space.A.shape[0]), method="RK45", rtol=1e-6, atol=1e-9,
+              t_eval=np.linspace(0, 10.0, 1001), max_step=0.02)  # fmt: skip
+    ivp = time.perf_counter() - start
+    print(f"{count} variants, rk4 10 s at 1 ms, one call: {batch:.3f} s "
+          f"({batch / (count * 10_000) * 1e9:.1f} ns per variant-step, all set-up included)")
+    print(f"variant by variant (scaled from {sample}): {one_by_one:.2f} s; ratio {one_by_one / batch:.1f}× "
+          f"(target ≥ {TARGET_SINGLE:g}×: {'met' if one_by_one / batch >= TARGET_SINGLE else 'NOT met'})")
+    print(f"solve_ivp RK45 rtol 1e-6 on the stacked {space.A.shape[0]}-state system: {ivp:.2f} s; "
+          f"ratio {ivp / batch:.1f}× (target ≥ {TARGET_IVP:g}×: {'met' if ivp / batch >= TARGET_IVP else 'NOT met'})")
+    print(f"batch status: {runs.status}; displacement array {runs.displacement.shape}")
+
+
+if __name__ == "__main__":
+    main(int(sys.argv[1]) if len(sys.argv) > 1 else 1000)

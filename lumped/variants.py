@@ -1,0 +1,189 @@
+"""Many variants of one system run together: design parameters changed per variant,
+all variants stepped by one call of the engine.
+
+A change is addressed as ``"group.id.field"`` — ``"springs.tyre.stiffness"``,
+``"dampers.corner_damper.coefficient"``, ``"bodies.body.mass"`` — with one value per
+variant (SI). The variants are laid side by side as one system (each with its own
+copy of every body, support and element, all following the same inputs), so that
+the compiled kernel steps them all in one loop, with no Python between variants.
+This is the building block of design sweeps: a sweep hands chunks of variants to
+workers, each running one batch.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from lumped.errors import LumpedError
+from lumped.model import System, check_system
+from lumped.simulate import Event, RunResult, simulate
+
+__all__ = ["VariantError", "VariantRuns", "variant_system", "simulate_variants"]
+
+_GROUPS = ("bodies", "supports", "springs", "dampers", "inerters", "forces")
+
+
+class VariantError(LumpedError):
+    """A change that names no item or field, or values that do not fit."""
+
+
+def _parse(path: str, system: System) -> tuple[str, str, str]:
+    parts = path.split(".")
+    if len(parts) != 3:
+        raise VariantError(f"variant change {path!r}: write it as group.id.field, e.g. springs.tyre.stiffness")
+    group, item_id, field = parts
+    if group not in _GROUPS:
+        raise VariantError(f"variant change {path!r}: group {group!r} is not one of {', '.join(_GROUPS)}")
+    items = getattr(system, group)
+    if item_id not in items:
+        raise VariantError(f"variant change {path!r}: no item {item_id!r} in {group}")
+    item = items[item_id]
+    names = {f.name for f in dataclasses.fields(item)}
+    value = getattr(item, field, None) if field in names else None
+    if not isinstance(value, int | float) or isinstance(value, bool):
+        numeric = sorted(n for n in names if isinstance(getattr(item, n), int | float) and not isinstance(getattr(item, n), bool))
+        raise VariantError(
+            f"variant change {path!r}: {group}.{item_id} has no numeric field {field!r} "
+            f"(numeric fields: {', '.join(numeric)})"
+        )
+    return group, item_id, field
+
+
+def variant_system(system: System, change: Mapping[str, float]) -> System:
+    """``system`` with each ``"group.id.field"`` of ``change`` set to its value (SI)."""
+    groups = {g: dict(getattr(system, g)) for g in _GROUPS}
+    for path, value in change.items():
+        group, item_id, field = _parse(path, system)
+        groups[group][item_id] = dataclasses.replace(groups[group][item_id], **{field: float(value)})
+    variant = dataclasses.replace(system, **groups)
+    problems = check_system(variant)
+    if problems:
+        raise VariantError("; ".join(str(p) for p in problems))
+    return variant
+
+
+@dataclass
+class VariantRuns:
+    """The runs of all variants, as arrays (variants, samples, items), SI.
+
+    ``parameters`` maps each changed ``"group.id.field"`` to its values per variant.
+    ``events[i]`` are variant i's events; ``batch`` is the run of all variants laid
+    side by side (its energy account covers the whole batch).
+    """
+
+    parameters: dict[str, np.ndarray]
+    time: np.ndarray
+    body_ids: tuple[str, ...]
+    element_ids: tuple[str, ...]
+    displacement: np.ndarray
+    velocity: np.ndarray
+    acceleration: np.ndarray
+    deflection: np.ndarray
+    force: np.ndarray
+    events: list[list[Event]]
+    status: str
+    message: str
+    batch: RunResult
+
+    @property
+    def count(self) -> int:
+        return self.displacement.shape[0]
+
+
+def _prefix(i: int) -> str:
+    return f"v{i}_"
+
+
+def _stacked(variants: list[System]) -> System:
+    """The variants side by side: every body and element id of variant i prefixed
+    ``v{i}_``; supports and inputs shared (a support is a prescribed motion, the same
+    for every variant)."""
+    base = variants[0]
+    groups: dict[str, dict] = {g: {} for g in _GROUPS}
+    groups["supports"] = dict(base.supports)
+    for i, system in enumerate(variants):
+        p = _prefix(i)
+
+        def node(name: str, p=p, system=system) -> str:
+            return name if name in system.supports else p + name
+
+        for body in system.bodies.values():
+            groups["bodies"][p + body.id] = dataclasses.replace(body, id=p + body.id)
+        for group in ("springs", "dampers", "inerters"):
+            for e in getattr(system, group).values():
+                between = (node(e.between[0]), node(e.between[1]))
+                groups[group][p + e.id] = dataclasses.replace(e, id=p + e.id, between=between)
+        for f in system.forces.values():
+            groups["forces"][p + f.id] = dataclasses.replace(f, id=p + f.id, on=p + f.on)
+    return dataclasses.replace(base, name=f"{base.name} ({len(variants)} variants)", **groups)
+
+
+def simulate_variants(
+    system: System,
+    changes: Mapping[str, Sequence[float]],
+    stepper: str | None = None,
+    dt: float | None = None,
+    duration: float | None = None,
+    output_rate: float | None = None,
+    output_every: int | None = None,
+) -> VariantRuns:
+    """Run every variant of ``system`` given by ``changes`` (one array of values per
+    ``"group.id.field"``, all of one length) in one call of the engine.
+
+    Settings default to the file's ``[run]``, as in :func:`lumped.simulate.simulate`.
+    The step check of a batch is each variant's business (:func:`lumped.stability.check_step`);
+    a batch that diverges reports it for the batch as a whole.
+    """
+    if not changes:
+        raise VariantError("give at least one change, as {'springs.tyre.stiffness': [...]}")
+    values = {path: np.asarray(v, dtype=float).ravel() for path, v in changes.items()}
+    lengths = {len(v) for v in values.values()}
+    if any(path.startswith("supports.") for path in values):
+        raise VariantError("supports are shared by every variant; vary bodies, elements or forces")
+    if len(lengths) != 1 or 0 in lengths:
+        raise VariantError(f"every change needs the same, non-zero number of values; got {sorted(lengths)}")
+    for path, v in values.items():
+        _parse(path, system)
+        if not np.all(np.isfinite(v)):
+            raise VariantError(f"variant change {path!r}: every value must be finite")
+    count = lengths.pop()
+    variants = [variant_system(system, {p: v[i] for p, v in values.items()}) for i in range(count)]
+    batch = simulate(_stacked(variants), stepper, dt, duration, output_rate, output_every, check=False)
+    n = len(system.bodies)
+    samples = len(batch.time)
+    # Bodies are laid variant by variant; elements by group, so pick them by id.
+    position = {element: k for k, element in enumerate(batch.element_ids)}
+    element_ids = tuple(system.elements)
+    columns = np.array([[position[_prefix(i) + x] for x in element_ids] for i in range(count)])
+
+    def split(array: np.ndarray, width: int) -> np.ndarray:
+        return array.reshape(samples, count, width).transpose(1, 0, 2)
+
+    def pick(array: np.ndarray) -> np.ndarray:
+        return array[:, columns].transpose(1, 0, 2)
+
+    events: list[list[Event]] = [[] for _ in range(count)]
+    for event in batch.events:
+        head, _, rest = event.element.partition("_")
+        if head.startswith("v") and head[1:].isdigit():
+            events[int(head[1:])].append(dataclasses.replace(event, element=rest))
+    first = _prefix(0)
+    return VariantRuns(
+        parameters=values,
+        time=batch.time,
+        body_ids=tuple(b[len(first):] for b in batch.body_ids[:n]),
+        element_ids=element_ids,
+        displacement=split(batch.displacement, n),
+        velocity=split(batch.velocity, n),
+        acceleration=split(batch.acceleration, n),
+        deflection=pick(batch.deflection),
+        force=pick(batch.force),
+        events=events,
+        status=batch.status,
+        message=batch.message,
+        batch=batch,
+    )
