@@ -211,15 +211,17 @@ def as_text(frame: pd.DataFrame, columns, digits: int = 4) -> pd.DataFrame:
 
 
 def check_modes_frame(check) -> pd.DataFrame:
-    """One row per mode of a :class:`lumped.stability.StepCheck`, numbered from 1:
-    frequency, damping ratio, its step limit, spectral radius per step, growth over the
-    run, the stepper's numerical damping ratio and period error; ``limit`` marks the
-    mode that sets the system's limit."""
+    """One row per mode of a :class:`lumped.stability.StepCheck`, numbered from 1: the
+    state it belongs to (linearised, stiffest contact state, or bound), frequency,
+    damping ratio, its step limit, spectral radius per step, growth over the run, the
+    stepper's numerical damping ratio and period error; ``limit`` marks the mode that
+    sets the system's limit."""
     rows = []
     for k, m in enumerate(check.modes, 1):
         rows.append(
             {
                 "mode": k,
+                "state": getattr(m, "state", ""),
                 "frequency [Hz]": number_text(m.natural_frequency_hz, 6),
                 "damping ratio": number_text(m.damping_ratio),
                 "max stable dt": step_text(m.max_stable_dt),
@@ -230,7 +232,7 @@ def check_modes_frame(check) -> pd.DataFrame:
                 "limit": "sets the limit" if check.limiting_mode == k - 1 else "",
             }
         )
-    columns = ["mode", "frequency [Hz]", "damping ratio", "max stable dt", "radius per step",
+    columns = ["mode", "state", "frequency [Hz]", "damping ratio", "max stable dt", "radius per step",
                "growth over run", "numerical damping", "period error", "limit"]  # fmt: skip
     return pd.DataFrame(rows, columns=columns)
 

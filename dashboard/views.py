@@ -321,7 +321,8 @@ def modes_tab(system: lumped.System, system_key: str) -> None:
     st.caption(
         "Per mode at the chosen step: its own step limit, the spectral radius of one step, the "
         "growth of its amplitude over the run, and the stepper's numerical damping ratio and "
-        "period error (T numerical / T − 1)."
+        "period error (T numerical / T − 1). The state says which linearisation a mode belongs "
+        "to: at static equilibrium, or in the stiffest contact state of a nonlinear system."
     )
 
 
@@ -471,13 +472,25 @@ def _results(system: lumped.System, system_key: str, current_key: tuple | None) 
         st.warning(f"**Run {result.status}.** {_md(result.message)}", icon=":material/warning:")
 
     balance = float(np.max(np.abs(result.balance_error))) if len(result.time) else 0.0
+    ratio = result.balance_ratio
     cols = st.columns(4)
     cols[0].metric("Status", result.status)
     cols[1].metric("Samples", f"{len(result.time):,}")
     cols[2].metric("Events", f"{len(result.events):,}")
     cols[3].metric("Energy balance error", f"{balance:.3e} J",
+                   delta=f"{tables.number_text(100 * ratio, 3)} % of the energy through",
+                   delta_color="off", delta_arrow="off",
                    help="Largest |kinetic + stored + dissipated − initial − work done| over "
-                   "the run: the stepper's error on the energy balance.")  # fmt: skip
+                   "the run, and that as a share of the energy that passed through the "
+                   "system: the stepper's error on the energy balance.")  # fmt: skip
+    if result.status == "completed" and ratio > lumped.simulate.BALANCE_WARNING:
+        st.warning(
+            f"**Poor energy balance:** the error is {tables.number_text(100 * ratio, 3)} % of the "
+            f"energy through the system (more than "
+            f"{100 * lumped.simulate.BALANCE_WARNING:g} %): the step is too large for an "
+            "accurate run. Try the recommended step.",
+            icon=":material/warning:",
+        )
 
     stem = re.sub(r"[^\w.-]+", "_", system_key.split(":")[1].removesuffix(".toml"))[:40]
     st.download_button(

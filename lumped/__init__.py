@@ -49,6 +49,7 @@ from lumped.report import SystemSummary, node_levels, summarize
 from lumped.static import StaticError, StaticState, static_equilibrium
 from lumped.steppers import STEPPERS, Stepper, get_stepper
 from lumped.units import display, parse_quantity
+from lumped.variants import VariantRuns, simulate_variants, variant_system
 
 __all__ = [
     "Body", "BumpInput", "DEMO_DIR", "Damper", "Figure", "Force", "FrequencyResponse",
@@ -59,6 +60,7 @@ __all__ = [
     "assemble", "check_system", "frequency_response", "road_figures", "run_figures",
     "transfer", "transmissibility", "demo_path", "demo_systems", "display", "dump_path", "dumps",
     "get_stepper", "load", "loads", "node_levels", "parse_quantity", "save", "state_space",
-    "static_equilibrium", "summarize", "uniform_chain",
+    "simulate_variants", "static_equilibrium", "summarize", "uniform_chain", "variant_system",
+    "VariantRuns",
 ]  # fmt: skip
 __version__ = "0.1.0"
