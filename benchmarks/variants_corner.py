@@ -12,10 +12,10 @@ import sys
 import time
 
 import numpy as np
+from corner_rk4 import linear_corner
 from scipy.integrate import solve_ivp
 
 import lumped
-from corner_rk4 import linear_corner
 from lumped.excitation import signal_for
 from lumped.simulate import simulate
 from lumped.variants import _stacked, simulate_variants, variant_system

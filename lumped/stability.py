@@ -23,8 +23,8 @@ for every mode whatever its damping, and a stepper that is unstable on undamped 
 
 from __future__ import annotations
 
-import functools
 import dataclasses
+import functools
 import math
 from dataclasses import dataclass, field
 
