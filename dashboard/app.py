@@ -260,19 +260,18 @@ def main() -> None:
     if state.system is not None:
         views.reset_settings(state.system, state.system_key)
         header(state.summary)
+        # Lazy tabs: only the open one runs, so a closed tab's analysis costs nothing.
         tabs = st.tabs(TABS, key="section", on_change="rerun")
-        with tabs[0]:
-            if tabs[0].open:
-                system_tab(state.view)
-        with tabs[1]:
-            if tabs[1].open:
-                views.modes_tab(state.system, state.system_key)
-        with tabs[2]:
-            if tabs[2].open:
-                views.response_tab(state.system, state.system_key)
-        with tabs[3]:
-            if tabs[3].open:
-                views.run_tab(state.system, state.system_key)
+        pages = [
+            lambda: system_tab(state.view),
+            lambda: views.modes_tab(state.system, state.system_key),
+            lambda: views.response_tab(state.system, state.system_key),
+            lambda: views.run_tab(state.system, state.system_key),
+        ]
+        for tab, page in zip(tabs, pages, strict=True):
+            with tab:
+                if tab.open:
+                    page()
     else:
         st.info("Choose a demo system or open a system file in the sidebar.")
         st.caption(f":material/health_and_safety: {CAUTION}")

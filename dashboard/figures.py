@@ -318,7 +318,9 @@ def mode_shape(mode, number: int) -> go.Figure:
         what = "rigid-body mode"
     else:
         zeta = "" if mode.damping_ratio is None else f", damping ratio {mode.damping_ratio:.3g}"
-        what = f"{mode.natural_frequency_hz:.4g} Hz{zeta}" + (", overdamped" if mode.overdamped else "")
+        what = f"{mode.natural_frequency_hz:.4g} Hz{zeta}" + (
+            ", overdamped" if mode.overdamped else ""
+        )
     _base_layout(fig, 340, f"Mode {number} · {what}")
     fig.update_layout(hovermode="closest", showlegend=False)
     fig.update_yaxes(title={"text": "undamped shape, mass-normalised [kg<sup>-½</sup>]",

@@ -155,7 +155,7 @@ def problems_frame(rows: list[dict]) -> pd.DataFrame:
 
 
 def mode_kind(mode) -> str:
-    """"rigid-body", "overdamped" or "oscillatory" for a :class:`lumped.modal.Mode`."""
+    """ "rigid-body", "overdamped" or "oscillatory" for a :class:`lumped.modal.Mode`."""
     if mode.rigid:
         return "rigid-body"
     return "overdamped" if mode.overdamped else "oscillatory"

@@ -35,10 +35,12 @@ RESPONSE_KEYS = ("fr_input", "fr_output", "fr_quantity")
 ROAD_KEYS = ("road_class", "road_speed", "road_supports")
 SETTING_KEYS = STEP_KEYS + RUN_KEYS + MODE_KEYS + RESPONSE_KEYS + ROAD_KEYS
 
-#: Runs kept per session (each keeps all its samples).
+#: Runs kept per session (each keeps all its samples), and the most memory they may
+#: take together (the newest run is kept whatever its size).
 RUN_CACHE_SIZE = 3
+RUN_CACHE_BYTES = 512 * 2**20
 #: Runs with more body-steps than this get a warning before they start.
-LONG_RUN_BODY_STEPS = 40_000_000
+LONG_RUN_BODY_STEPS = 50_000_000
 #: Road figures are computed without asking up to this many bodies.
 ROAD_AUTO_BODIES = 200
 
@@ -74,7 +76,7 @@ def _modes(system_key: str, _system: lumped.System):
     matrices = _matrices(system_key, _system)
     try:
         return ("modes", lumped.modal.modal_analysis(matrices))
-    except lumped.modal.ModalError as exc:
+    except lumped.LumpedError as exc:  # over the size limit of a full modal analysis
         if matrices.n == 0:
             raise
         return ("bound", lumped.modal.stiffest_mode(matrices), str(exc))
@@ -94,10 +96,13 @@ def _transfer(system_key: str, _system: lumped.System, input_id: str, output_id:
 
 @st.cache_resource(show_spinner=False, max_entries=32)
 def _road(system_key: str, _system: lumped.System, road_class: str, speed: float,
-          supports: tuple[str, ...] | None):  # fmt: skip
+          supports: tuple[str, ...] | None, items: tuple | None):  # fmt: skip
+    """Road figures; ``items`` (bodies, travel, loads) as :func:`choices.figure_items`."""
+    bodies, travel, loads = (list(group) for group in items) if items else (None, None, None)
     return lumped.metrics.road_figures(
         _system, road_class=road_class, speed=speed,
         supports=list(supports) if supports is not None else None,
+        bodies=bodies, travel=travel, loads=loads,
     )  # fmt: skip
 
 
@@ -141,7 +146,10 @@ def reset_settings(system: lumped.System, system_key: str) -> None:
         if dt is None or not np.isfinite(dt):
             dt = 1e-3
     duration = run.duration if run.duration is not None else 1.0
-    if len(system.bodies) > choices.LARGE_SYSTEM_BODIES and duration > choices.LARGE_SYSTEM_DURATION:
+    if (
+        len(system.bodies) > choices.LARGE_SYSTEM_BODIES
+        and duration > choices.LARGE_SYSTEM_DURATION
+    ):
         notes.append(
             f"{len(system.bodies):,} bodies: the page starts with a "
             f"{choices.time_text(choices.LARGE_SYSTEM_DURATION)} run (the file asks for "
@@ -205,7 +213,11 @@ def _verdict(check) -> None:
     limit = tables.step_text(check.max_stable_dt)
     if check.limiting_mode is not None:
         mode = check.modes[check.limiting_mode]
-        setter = (f"the {mode.natural_frequency_hz:.5g} Hz mode (damping ratio "
+        state = getattr(mode, "state", "linearised")
+        where = {"linearised": "", "": "", "bound": " (a bound on the stiffest mode)"}.get(
+            state, f" of the {state}"
+        )
+        setter = (f"the {mode.natural_frequency_hz:.5g} Hz mode{where} (damping ratio "
                   f"{mode.damping_ratio:.3g})")  # fmt: skip
     else:
         setter = None
@@ -373,7 +385,9 @@ def response_tab(system: lumped.System, system_key: str) -> None:
         numbers = [c for c in frame.columns if c != "peak"]
         st.dataframe(
             tables.as_text(frame, numbers, 5), hide_index=True, key="peaks_table",
-            column_config={c: st.column_config.TextColumn(c, alignment="right") for c in numbers},
+            width="content", height=_table_height(len(frame), 15),
+            column_config={c: st.column_config.TextColumn(c, alignment="right", width=130)
+                           for c in numbers},
         )  # fmt: skip
     else:
         st.caption("No resonance peak on this response.")
@@ -427,9 +441,17 @@ def _start_run(system, system_key, stepper, dt, duration, rate) -> None:
         "elapsed": elapsed,
         "figures": {},
     }
-    while len(runs) > RUN_CACHE_SIZE:
-        runs.popitem(last=False)
+    while len(runs) > 1 and (len(runs) > RUN_CACHE_SIZE or _kept_bytes(runs) > RUN_CACHE_BYTES):
+        runs.popitem(last=False)  # the oldest run goes first; the newest always stays
     state.run_shown, state.run_error = key, None
+
+
+def _kept_bytes(runs) -> int:
+    return sum(
+        values.nbytes
+        for bundle in runs.values()
+        for _, values in bundle["result"].channels().values()
+    )
 
 
 def _run_figures(system, bundle) -> tuple[list | None, str | None, tuple | None]:
@@ -442,9 +464,16 @@ def _run_figures(system, bundle) -> tuple[list | None, str | None, tuple | None]
                 cache[items] = (lumped.metrics.run_figures(system, bundle["result"]), None)
             else:
                 bodies, travel, loads = items
-                cache[items] = (lumped.metrics.run_figures(
-                    system, bundle["result"], bodies=list(bodies), travel=list(travel),
-                    loads=list(loads)), None)
+                cache[items] = (
+                    lumped.metrics.run_figures(
+                        system,
+                        bundle["result"],
+                        bodies=list(bodies),
+                        travel=list(travel),
+                        loads=list(loads),
+                    ),
+                    None,
+                )
         except lumped.LumpedError as exc:
             cache[items] = (None, str(exc))
     rows, error = cache[items]
@@ -467,7 +496,8 @@ def _results(system: lumped.System, system_key: str, current_key: tuple | None) 
         st.info("These results are from the settings named above, not the current ones: "
                 "press **Run** to update them.", icon=":material/history:")  # fmt: skip
     if result.status == "diverged":
-        st.error(f"**The run diverged.** {_md(result.message)}", icon=":material/dangerous:")
+        message = result.message[:1].upper() + result.message[1:]
+        st.error(f"**Stopped early.** {_md(message)}", icon=":material/dangerous:")
     elif result.status != "completed":
         st.warning(f"**Run {result.status}.** {_md(result.message)}", icon=":material/warning:")
 
@@ -478,7 +508,7 @@ def _results(system: lumped.System, system_key: str, current_key: tuple | None) 
     cols[1].metric("Samples", f"{len(result.time):,}")
     cols[2].metric("Events", f"{len(result.events):,}")
     cols[3].metric("Energy balance error", f"{balance:.3e} J",
-                   delta=f"{tables.number_text(100 * ratio, 3)} % of the energy through",
+                   delta=f"{tables.number_text(100 * ratio, 3)} % of the energy passed",
                    delta_color="off", delta_arrow="off",
                    help="Largest |kinetic + stored + dissipated − initial − work done| over "
                    "the run, and that as a share of the energy that passed through the "
@@ -532,26 +562,39 @@ def _results(system: lumped.System, system_key: str, current_key: tuple | None) 
         st.warning(_md(error), icon=":material/warning:")
     else:
         _figures_table(rows, "run_figures_table")
-        if items is not None:
-            covered = ", ".join(dict.fromkeys(i for group in items for i in group))
-            st.caption(f"{len(system.bodies):,} bodies: the table covers {_md(covered)} "
-                       "(a row per item would take long and read badly).")  # fmt: skip
+        _covered_note(system, items)
+
+
+def _covered_note(system: lumped.System, items) -> None:
+    if items is not None:
+        covered = ", ".join(dict.fromkeys(i for group in items for i in group))
+        st.caption(
+            f"{len(system.bodies):,} bodies: the table covers {_md(covered)} "
+            "(a row per item would take long and read badly)."
+        )
+
+
+def _fit(texts, most: int = 340) -> int:
+    """A column width (px) that shows the longest of ``texts`` whole, up to ``most``."""
+    return min(most, 24 + 7 * max((len(str(t)) for t in texts), default=4))
 
 
 def _figures_table(rows, key: str) -> None:
+    frame = tables.figures_frame(rows)
     st.dataframe(
-        tables.as_text(tables.figures_frame(rows), ["value"], 4), hide_index=True, key=key,
+        tables.as_text(frame, ["value"], 4), hide_index=True, key=key,
         height=_table_height(len(rows), 30),
         column_config={
-            "value": st.column_config.TextColumn("value", alignment="right"),
-            "unit": st.column_config.TextColumn("unit", width="small"),
+            "figure": st.column_config.TextColumn("figure", width=_fit(frame["figure"])),
+            "item": st.column_config.TextColumn("item", width=_fit(frame["item"], 200)),
+            "value": st.column_config.TextColumn("value", alignment="right", width=80),
+            "unit": st.column_config.TextColumn("unit", width=_fit(frame["unit"], 90)),
             "rule": st.column_config.TextColumn("rule", width="large"),
         },
     )  # fmt: skip
 
 
 def _road_section(system: lumped.System, system_key: str) -> None:
-    state = st.session_state
     st.subheader("Road figures (spectral)", anchor=False)
     if not system.supports:
         st.caption("The system has no support for a road to drive.")
@@ -580,12 +623,17 @@ def _road_section(system: lumped.System, system_key: str) -> None:
     if supports is not None and not supports:
         st.caption("Pick at least one support.")
         return
-    args = (system_key, system, road_class, float(speed), tuple(supports) if supports else None)
-    if len(system.bodies) > ROAD_AUTO_BODIES and not st.button(
-        "Compute road figures", key="road_button", help="Spectral integrals over every output."
-    ):
-        st.caption(f"{len(system.bodies):,} bodies: the road figures are computed on request.")
-        return
+    items = choices.figure_items(system)
+    args = (system_key, system, road_class, float(speed), tuple(supports) if supports else None,
+            items)  # fmt: skip
+    asked = st.session_state.setdefault("road_asked", set())  # settings computed on request
+    request = (system_key, *args[2:])
+    if len(system.bodies) > ROAD_AUTO_BODIES and request not in asked:
+        if not st.button("Compute road figures", key="road_button",
+                         help="Spectral integrals over the response of every item covered."):  # fmt: skip
+            st.caption(f"{len(system.bodies):,} bodies: the road figures are computed on request.")
+            return
+        asked.add(request)
     try:
         with st.spinner("Integrating the road spectrum…"):
             rows = _road(*args)
@@ -593,6 +641,7 @@ def _road_section(system: lumped.System, system_key: str) -> None:
         _library_error(exc, "Road figures")
         return
     _figures_table(rows, "road_figures_table")
+    _covered_note(system, items)
 
 
 def run_tab(system: lumped.System, system_key: str) -> None:
@@ -615,14 +664,16 @@ def run_tab(system: lumped.System, system_key: str) -> None:
     current_key = _settings_key(system_key, stepper, dt, duration, rate) if ready else None
     if check is not None:
         _verdict(check)
+        if state.get("run_anyway_for") != current_key:  # a tick holds for one setting only
+            state.run_anyway, state.run_anyway_for = False, current_key
         if not check.stable:
             st.checkbox("Run anyway (the run is expected to diverge)", key="run_anyway")
         work = check.steps * len(system.bodies)
         if work > LONG_RUN_BODY_STEPS:
             st.warning(
                 f"A long run: {check.steps:,} steps of {len(system.bodies):,} bodies. The page "
-                "waits for it (the bar shows how far it is; Stop at the top right ends it). A "
-                "shorter duration or a lower output rate keeps the page quick.",
+                "waits for it while the bar shows how far it is; a shorter duration keeps the "
+                "page quick.",
                 icon=":material/hourglass_top:",
             )
     allowed = ready and (check.stable or bool(state.get("run_anyway")))

@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -129,6 +130,12 @@ def weighting_response(weighting: str | Weighting, frequency) -> np.ndarray:
     return out
 
 
+@lru_cache(maxsize=8)
+def _slowest_decay(weighting: Weighting) -> float:
+    """Decay rate (1/s) of the weighting's slowest pole."""
+    return float(np.min(-weighting.poles().real))
+
+
 def weighted_signal(acceleration, sample_rate: float, weighting: str | Weighting = "Wk") -> np.ndarray:
     """The frequency-weighted acceleration a_w(t), m/s², of a uniformly sampled
     ``acceleration`` (m/s²; 1-D, or 2-D with time along axis 0) at ``sample_rate`` Hz.
@@ -164,7 +171,7 @@ def weighted_signal(acceleration, sample_rate: float, weighting: str | Weighting
         raise WeightingError(f"weighting {w.name}: needs at least two samples, got {a.shape[0]}")
     if not np.all(np.isfinite(a)):
         raise WeightingError(f"weighting {w.name}: the acceleration has non-finite samples")
-    decay = float(np.min(-w.poles().real))
+    decay = _slowest_decay(w)
     pad = int(math.ceil(PAD_DECAYS / decay * sample_rate))
     size = _fast_length(a.shape[0] + pad)
     spectrum = np.fft.rfft(a, n=size, axis=0)

@@ -28,6 +28,7 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -294,7 +295,7 @@ def run_figures(
     uniform_window = window[:uniform]
     uniform_weights = _window_weights(time[:uniform], uniform_window)
     for b in chosen_b:
-        a = np.asarray(result.acceleration[:, result.body_ids.index(b)], dtype=float)
+        a = np.asarray(result.acceleration[:, _index(result.body_ids)[b]], dtype=float)
         aw = weighted_signal(a[:uniform], rate, w)
         aw_rms = rms(aw, uniform_weights)
         rows += [
@@ -310,7 +311,7 @@ def run_figures(
                    "m/s^1.75", f"{ISO2631}, (∫ a_w⁴ dt)^¼ {span}", b, "run"),
         ]  # fmt: skip
     for e in chosen_t:
-        d = np.asarray(result.deflection[:, result.element_ids.index(e)], dtype=float)
+        d = np.asarray(result.deflection[:, _index(result.element_ids)[e]], dtype=float)
         rows += [
             Figure("travel_peak", "peak travel (from static)", float(np.max(np.abs(d[window]))), "m",
                    f"{COMMON}, largest |deflection − static| {span}", e, "run"),
@@ -325,7 +326,7 @@ def run_figures(
                                float(np.sum(weights[beyond]) / np.sum(weights)), "1",
                                f"{COMMON}, |deflection − static| > gap {gap:g} m, {span}", e, "run"))  # fmt: skip
     for e in chosen_l:
-        rows += _run_load_rows(e, np.asarray(result.force[:, result.element_ids.index(e)], dtype=float),
+        rows += _run_load_rows(e, np.asarray(result.force[:, _index(result.element_ids)[e]], dtype=float),
                                static.force_in(e), weights, span, _one_sided(system, e))  # fmt: skip
     return rows
 
@@ -335,6 +336,12 @@ def _window_weights(time: np.ndarray, window: np.ndarray) -> np.ndarray:
     out = np.zeros(len(time))
     out[window] = sample_weights(time[window])
     return out
+
+
+@lru_cache(maxsize=16)
+def _index(ids: tuple[str, ...]) -> dict[str, int]:
+    """Position of each id (cached: a figures table looks up every item)."""
+    return {name: i for i, name in enumerate(ids)}
 
 
 def _one_sided(system: System, element: str) -> bool:
@@ -491,15 +498,15 @@ def road_figures(
             return np.sum(array[:, index, :] * phase, axis=1)
 
         for b in chosen_b:
-            a = combined(response.acceleration, response.body_ids.index(b))
+            a = combined(response.acceleration, _index(response.body_ids)[b])
             power = np.abs(a) ** 2 * g
             variance["acc"][b] = variance["acc"].get(b, 0.0) + spectral_rms(grid, power) ** 2
             variance["weighted"][b] = variance["weighted"].get(b, 0.0) + spectral_rms(grid, power * weight2) ** 2
         for e in chosen_t:
-            d = combined(response.deflection, response.element_ids.index(e))
+            d = combined(response.deflection, _index(response.element_ids)[e])
             variance["travel"][e] = variance["travel"].get(e, 0.0) + spectral_rms(grid, np.abs(d) ** 2 * g) ** 2
         for e in chosen_l:
-            f = combined(response.force, response.element_ids.index(e))
+            f = combined(response.force, _index(response.element_ids)[e])
             variance["load"][e] = variance["load"].get(e, 0.0) + spectral_rms(grid, np.abs(f) ** 2 * g) ** 2
 
     what = "; ".join(f"ISO 8608 class {r.road_class} at {r.speed:g} m/s under {', '.join(s for s, _ in r.supports)}"

@@ -29,6 +29,7 @@ from lumped.assemble import DENSE_LIMIT, Matrices, mass_solver, state_space
 from lumped.errors import LumpedError
 
 __all__ = [
+    "ModalError",
     "Mode",
     "ModalResult",
     "StiffestMode",

@@ -33,7 +33,7 @@ from lumped.stability import StepCheck, check_step, step_count
 from lumped.static import StaticState, static_equilibrium
 from lumped.steppers import RungeKuttaStepper, SecondOrderStepper, Stepper, get_stepper
 
-__all__ = ["RunError", "Event", "RunResult", "simulate", "ADAPTIVE_METHODS", "CHUNK_STEPS"]
+__all__ = ["RunError", "Event", "RunResult", "simulate", "ADAPTIVE_METHODS", "BALANCE_WARNING", "CHUNK_STEPS"]
 
 #: Steps per compiled chunk between the driver's progress/cancel/divergence checks.
 CHUNK_STEPS = 8192

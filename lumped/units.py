@@ -12,6 +12,8 @@ import re
 from dataclasses import dataclass
 from functools import lru_cache
 
+from lumped.errors import LumpedError
+
 __all__ = ["Dimension", "DIMENSIONS", "QuantityError", "parse_quantity", "format_quantity"]
 
 #: Longest quantity string read; longer text is refused before pint sees it.
@@ -30,7 +32,7 @@ _QUANTITY_SHAPE = re.compile(
 )
 
 
-class QuantityError(ValueError):
+class QuantityError(LumpedError):
     """A value that is not a finite quantity of the expected kind."""
 
 
