@@ -328,18 +328,22 @@ _COMMANDS = {
 _NUMBER_CELL = re.compile(r"[-+]?(\d[\d.]*(e[-+]?\d+)?|inf|nan)( [^\s,]+)?")
 
 
-def table(headers: list[str], rows: list[list[str]], indent: str = "  ") -> str:
-    """Rows under headers, columns padded to their widest cell; numbers right-aligned."""
-    widths = [max(len(str(c)) for c in col) for col in zip(headers, *rows, strict=True)]
+#: Columns of free text, always left-aligned even when a cell reads as a number.
+TEXT_COLUMNS = ("values", "label", "motion", "kind", "between", "state")
 
-    def numeric(cell: str) -> bool:
-        return bool(_NUMBER_CELL.fullmatch(cell))
+
+def table(headers: list[str], rows: list[list[str]], indent: str = "  ") -> str:
+    """Rows under headers, columns padded to their widest cell; numbers right-aligned
+    (except in the free-text columns of :data:`TEXT_COLUMNS`)."""
+    widths = [max(len(str(c)) for c in col) for col in zip(headers, *rows, strict=True)]
+    text = [header in TEXT_COLUMNS for header in headers]
 
     def line(cells):
         out = []
-        for cell, width in zip(cells, widths, strict=True):
+        for cell, width, is_text in zip(cells, widths, text, strict=True):
             cell = str(cell)
-            out.append(cell.rjust(width) if numeric(cell) else cell.ljust(width))
+            right = not is_text and bool(_NUMBER_CELL.fullmatch(cell))
+            out.append(cell.rjust(width) if right else cell.ljust(width))
         return indent + "  ".join(out).rstrip()
 
     return "\n".join([line(headers)] + [line(r) for r in rows])

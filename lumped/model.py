@@ -605,7 +605,7 @@ def _check_connectivity(system: System) -> list[Problem]:
     if loose:
         out.append(
             Problem(f"bodies.{loose[0]}", "", "no chain of springs ties "
-                    + ("it" if len(loose) == 1 else f"it and {len(loose) - 1} other bodies ({', '.join(loose[1:6])}{'…' if len(loose) > 6 else ''})")
+                    + ("it" if len(loose) == 1 else f"it and {len(loose) - 1} other {'body' if len(loose) == 2 else 'bodies'} ({', '.join(loose[1:6])}{'…' if len(loose) > 6 else ''})")
                     + " to a support: the system has a rigid-body mode; set floating = true to allow that")
         )
     return out

@@ -69,7 +69,7 @@ def element_values(element) -> str:
             parts.append(f"{element.acts} only")
         if element.gap is not None:
             parts.append(
-                f"end stop after ±{display(element.gap, 'length')} at {display(element.gap_stiffness, 'stiffness')}"
+                f"end stop beyond ±{display(element.gap, 'length')} from static, {display(element.gap_stiffness, 'stiffness')}"
             )
         if element.preload:
             parts.append(f"preload {display(element.preload, 'force')}")
