@@ -323,6 +323,12 @@ def check_step(
             f"no positive step is stable with {stepper.id}: it amplifies the undamped "
             f"{omega[limiting] / (2 * math.pi):.6g} Hz mode at any step"
         )
+    if matrices.nonlinear.count and not runs_nonlinear(stepper):
+        notes.append(
+            f"{stepper.id} runs linear systems only for now, and this system has nonlinear "
+            "elements: a run with it is refused (use an explicit Runge–Kutta stepper or "
+            "symplectic-euler)"
+        )
     run_growth = float(np.max(growth)) if len(growth) else 1.0
     if bound_only:
         # Only the stiffest mode is known; a large system's slow, lightly damped modes
@@ -432,6 +438,14 @@ def _accurate(stepper: Stepper, eig: np.ndarray, h: float) -> bool:
         if period is not None and abs(period) > PERIOD_TOLERANCE:
             return False
     return True
+
+
+def runs_nonlinear(stepper: Stepper) -> bool:
+    """True for the steppers the engine runs on systems with nonlinear elements: the
+    explicit Runge–Kutta family and symplectic Euler."""
+    return (isinstance(stepper, RungeKuttaStepper) and stepper.explicit) or (
+        getattr(stepper, "scheme", "") == "symplectic-euler"
+    )
 
 
 def stiffest_state(matrices: Matrices) -> Matrices | None:
