@@ -140,11 +140,6 @@ def quantity_choices(output_kind: str) -> list[str]:
     return [q for q in ELEMENT_QUANTITIES if q != "displacement"]  # = deflection
 
 
-def quantity_unit(output_kind: str, quantity: str) -> str:
-    table = BODY_QUANTITIES if output_kind == "body" else ELEMENT_QUANTITIES
-    return table[quantity]
-
-
 def default_channels(system: lumped.System, channel_names) -> list[str]:
     """Channels plotted first after a run: body displacements (every body up to three,
     else the top one), then the deflection of up to two travel elements (suspension
