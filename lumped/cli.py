@@ -93,6 +93,10 @@ def _add_analysis_commands(commands) -> None:
     run.add_argument("--json", action="store_true", help="a summary of the run as JSON on stdout")
     run.add_argument("--figures", action="store_true",
                      help="ride, travel and load figures of the run (ISO 2631-1 weighted acceleration, VDV, ...)")
+    run.add_argument("--ride", metavar="BODY[,BODY]",
+                     help="bodies whose ride figures are reported, e.g. the seat (default: every body)")
+    run.add_argument("--settle", type=_quantity_arg("time"), default=0.0,
+                     help="leave the first part of the run out of the figures, s or with units")
 
 
 def _quantity_arg(dimension: str):
@@ -237,6 +241,11 @@ def cmd_run(args) -> int:
     if args.out and not Path(args.out).resolve().parent.is_dir():
         print(f"lumped run: --out folder {Path(args.out).parent} does not exist", file=sys.stderr)
         return EXIT_BAD_INPUT
+    unknown = [b for b in (args.ride or "").split(",") if b.strip() and b.strip() not in system.bodies]
+    if unknown:
+        print(f"lumped run: --ride names {', '.join(map(repr, unknown))}, not a body of the system "
+              f"(bodies: {', '.join(system.bodies)})", file=sys.stderr)  # fmt: skip
+        return EXIT_BAD_INPUT
     bar = None if args.quiet or not sys.stderr.isatty() else _ProgressBar()
     result = simulate(system, stepper=args.stepper, dt=args.dt, duration=args.duration,
                       output_rate=args.output_rate, progress=bar)  # fmt: skip
@@ -265,7 +274,8 @@ def cmd_run(args) -> int:
     if args.figures and not result.diverged:
         from lumped.metrics import run_figures
 
-        rows = run_figures(system, result)
+        bodies = [b.strip() for b in args.ride.split(",")] if args.ride else None
+        rows = run_figures(system, result, bodies=bodies, start=args.settle)
         summary["figures"] = [row.to_json() for row in rows]
     if args.json:
         _print_json(summary)

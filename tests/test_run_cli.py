@@ -253,3 +253,20 @@ def test_python_dash_m_lumped_run(seat_file, tmp_path):
     assert header == list(expected)
     for j, name in enumerate(header):
         np.testing.assert_array_equal(values[:, j], expected[name], err_msg=name)
+
+
+def test_figures_for_chosen_ride_bodies_after_settling(capsys, tmp_path):
+    # --ride limits the ride figures to the occupant's body; --settle leaves the start
+    # out (ISO 2631-1 figures are about the exposure, not the start-up transient).
+    from lumped.cli import main
+
+    shuttle = str(lumped.demo_path("shuttle_corner_with_seat"))
+    code = main(["run", shuttle, "--figures", "--ride", "seat", "--settle", "1 s", "--duration", "3 s",
+                 "--output-rate", "500 Hz", "--json"])  # fmt: skip
+    assert code == 0
+    rows = json.loads(capsys.readouterr().out)["figures"]
+    ride = {row["item"] for row in rows if row["key"] == "weighted_acceleration_rms"}
+    assert ride == {"seat"}
+    assert all("1–3 s" in row["rule"] for row in rows if row["key"] == "acceleration_rms")
+    code = main(["run", shuttle, "--figures", "--ride", "sat", "--duration", "1 s"])
+    assert code == 2 and "'sat'" in capsys.readouterr().err
