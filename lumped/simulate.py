@@ -402,6 +402,8 @@ def simulate(
         raise RunError("no stepper given and the system's [run] table names none")
     if duration is None or not (math.isfinite(duration) and duration > 0):
         raise RunError(f"duration must be a positive time, got {duration!r}")
+    if output_rate is not None and not (math.isfinite(output_rate) and output_rate > 0):
+        raise RunError(f"output rate must be a positive frequency, got {output_rate!r} Hz")
     if isinstance(stepper, str) and stepper in ADAPTIVE_METHODS:
         from lumped.adaptive import simulate_adaptive
 
