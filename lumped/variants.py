@@ -22,7 +22,7 @@ from lumped.errors import LumpedError
 from lumped.model import System, check_system
 from lumped.simulate import Event, RunResult, simulate
 
-__all__ = ["VariantError", "VariantRuns", "variant_system", "simulate_variants"]
+__all__ = ["VariantError", "VariantRun", "VariantRuns", "variant_system", "simulate_variants"]
 
 _GROUPS = ("bodies", "supports", "springs", "dampers", "inerters", "forces")
 
@@ -88,10 +88,44 @@ class VariantRuns:
     status: str
     message: str
     batch: RunResult
+    systems: list[System]
 
     @property
     def count(self) -> int:
         return self.displacement.shape[0]
+
+    def variant(self, i: int) -> VariantRun:
+        """Variant ``i``'s channels, in the shape the figures table reads."""
+        return VariantRun(
+            time=self.time, body_ids=self.body_ids, element_ids=self.element_ids,
+            displacement=self.displacement[i], velocity=self.velocity[i],
+            acceleration=self.acceleration[i], deflection=self.deflection[i], force=self.force[i],
+            events=self.events[i], status=self.status, message=self.message,
+        )  # fmt: skip
+
+    def figures(self, **options) -> list[list]:
+        """The figures table (:func:`lumped.metrics.run_figures`, same options) of every
+        variant: the same rows, with the same rules, as for a single run."""
+        from lumped.metrics import run_figures
+
+        return [run_figures(self.systems[i], self.variant(i), **options) for i in range(self.count)]
+
+
+@dataclass(frozen=True)
+class VariantRun:
+    """One variant of a batch: time (s) and its channels (samples × items), SI."""
+
+    time: np.ndarray
+    body_ids: tuple[str, ...]
+    element_ids: tuple[str, ...]
+    displacement: np.ndarray
+    velocity: np.ndarray
+    acceleration: np.ndarray
+    deflection: np.ndarray
+    force: np.ndarray
+    events: list[Event]
+    status: str
+    message: str
 
 
 def _prefix(i: int) -> str:
@@ -186,4 +220,5 @@ def simulate_variants(
         status=batch.status,
         message=batch.message,
         batch=batch,
+        systems=variants,
     )

@@ -45,3 +45,23 @@ def test_bad_changes_are_refused_with_the_path_named(changes, message):
     system = lumped.load(lumped.demo_path("quarter_car"))
     with pytest.raises(VariantError, match=message):
         simulate_variants(system, changes, "rk4", dt=1e-3, duration=0.01)
+
+
+def test_figures_of_each_variant_equal_those_of_its_own_run():
+    # The figures table is one source for runs and sweeps: a batch's variant gets the
+    # same rows, values and rules as a single run of that variant.
+    system = lumped.load(lumped.demo_path("shuttle_corner_with_seat"))
+    changes = {"springs.seat_spring.stiffness": [5e3, 9e3]}
+    runs = simulate_variants(system, changes, "rk4", dt=5e-4, duration=4.0, output_rate=500)
+    tables = runs.figures(bodies=["seat"], start=1.0)
+    for i, rows in enumerate(tables):
+        variant = variant_system(system, {"springs.seat_spring.stiffness": changes["springs.seat_spring.stiffness"][i]})
+        single = lumped.run_figures(variant, simulate(variant, "rk4", dt=5e-4, duration=4.0, output_rate=500),
+                                    bodies=["seat"], start=1.0)  # fmt: skip
+        assert [(r.key, r.item, r.rule) for r in rows] == [(r.key, r.item, r.rule) for r in single]
+        np.testing.assert_array_equal([r.value for r in rows], [r.value for r in single])
+    # the two seat springs give the seat different ride figures
+    def seat_aw(rows):
+        return next(r.value for r in rows if r.key == "weighted_acceleration_rms" and r.item == "seat")
+
+    assert seat_aw(tables[0]) != seat_aw(tables[1])
