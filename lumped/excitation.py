@@ -23,6 +23,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from lumped import signal_kernels
 from lumped.model import (
     BumpInput,
     HarmonicInput,
@@ -71,30 +72,34 @@ def iso8608_psd(road_class: str, n) -> np.ndarray:
 
 @dataclass(frozen=True)
 class Signal:
-    """Base: a signal of time, zero before t = 0. Subclasses give ``_value``,
-    ``_rate`` (first derivative) and ``_rate2`` (second), each for t ≥ 0."""
+    """Base: a signal of time, zero before t = 0. Subclasses give :meth:`code`, the
+    encoding that :mod:`lumped.signal_kernels` evaluates (the same code the stepping
+    kernels run, so that a signal has one definition)."""
 
-    def value(self, t):
-        t = np.asarray(t, dtype=float)
-        return np.where(t >= 0, self._value(np.maximum(t, 0.0)), 0.0)
-
-    def rate(self, t):
-        t = np.asarray(t, dtype=float)
-        return np.where(t >= 0, self._rate(np.maximum(t, 0.0)), 0.0)
-
-    def rate2(self, t):
-        t = np.asarray(t, dtype=float)
-        return np.where(t >= 0, self._rate2(np.maximum(t, 0.0)), 0.0)
+    def code(self) -> tuple[int, tuple[float, ...], np.ndarray]:
+        """``(kind, parameters, data)`` for :func:`lumped.signal_kernels.signal_motion`."""
+        raise NotImplementedError
 
     def motion(self, t):
-        """Value, rate and second rate at ``t`` together (one pass where it pays)."""
+        """Value, rate and second rate at ``t`` (s, any shape), SI."""
         t = np.asarray(t, dtype=float)
-        started = t >= 0
-        parts = self._motion(np.maximum(t, 0.0))
-        return tuple(np.where(started, part, 0.0) for part in parts)
+        kind, parameters, data = self.code()
+        p = np.zeros((1, signal_kernels.PARAMETERS))
+        p[0, : len(parameters)] = parameters
+        flat = np.ascontiguousarray(t.ravel())
+        parts = [np.empty_like(flat) for _ in range(3)]
+        signal_kernels.signal_series(kind, p, data if len(data) else np.zeros(1), flat, *parts)
+        shaped = tuple(part.reshape(t.shape) for part in parts)
+        return shaped if t.ndim else tuple(float(part) for part in shaped)
 
-    def _motion(self, t):
-        return self._value(t), self._rate(t), self._rate2(t)
+    def value(self, t):
+        return self.motion(t)[0]
+
+    def rate(self, t):
+        return self.motion(t)[1]
+
+    def rate2(self, t):
+        return self.motion(t)[2]
 
     def jumps(self) -> list[tuple[float, float]]:
         """(time, size) of each jump in value, SI."""
@@ -106,18 +111,16 @@ class Signal:
         raise NotImplementedError
 
 
+_NO_DATA = np.zeros(0)
+
+
 @dataclass(frozen=True)
 class StepSignal(Signal):
     size: float
     time: float
 
-    def _value(self, t):
-        return np.where(t >= self.time, self.size, 0.0)
-
-    def _rate(self, t):
-        return np.zeros_like(t)
-
-    _rate2 = _rate
+    def code(self):
+        return signal_kernels.STEP, (self.size, self.time), _NO_DATA
 
     def jumps(self):
         return [(self.time, self.size)] if self.size else []
@@ -136,30 +139,8 @@ class BumpSignal(Signal):
     speed: float
     time: float
 
-    def _phase(self, t):
-        s = (t - self.time) * self.speed / self.length
-        return s, (s >= 0) & (s <= 1)
-
-    def _value(self, t):
-        s, on = self._phase(t)
-        return np.where(on, 0.5 * self.height * (1 - np.cos(2 * np.pi * s)), 0.0)
-
-    def _rate(self, t):
-        s, on = self._phase(t)
-        w = 2 * np.pi * self.speed / self.length
-        return np.where(on, 0.5 * self.height * w * np.sin(2 * np.pi * s), 0.0)
-
-    def _rate2(self, t):
-        s, on = self._phase(t)
-        w = 2 * np.pi * self.speed / self.length
-        return np.where(on, 0.5 * self.height * w * w * np.cos(2 * np.pi * s), 0.0)
-
-    def _motion(self, t):
-        s, on = self._phase(t)
-        w = 2 * np.pi * self.speed / self.length
-        half = np.where(on, 0.5 * self.height, 0.0)
-        cos, sin = np.cos(2 * np.pi * s), np.sin(2 * np.pi * s)
-        return half * (1 - cos), half * w * sin, half * w * w * cos
+    def code(self):
+        return signal_kernels.BUMP, (self.height, self.length, self.speed, self.time), _NO_DATA
 
     @property
     def amplitude(self):
@@ -174,21 +155,8 @@ class HarmonicSignal(Signal):
     frequency: float
     phase: float
 
-    def _value(self, t):
-        return self.size * np.sin(2 * np.pi * self.frequency * t + self.phase)
-
-    def _rate(self, t):
-        w = 2 * np.pi * self.frequency
-        return self.size * w * np.cos(w * t + self.phase)
-
-    def _rate2(self, t):
-        w = 2 * np.pi * self.frequency
-        return -self.size * w * w * np.sin(w * t + self.phase)
-
-    def _motion(self, t):
-        w = 2 * np.pi * self.frequency
-        sin, cos = np.sin(w * t + self.phase), np.cos(w * t + self.phase)
-        return self.size * sin, self.size * w * cos, -self.size * w * w * sin
+    def code(self):
+        return signal_kernels.HARMONIC, (self.size, self.frequency, self.phase), _NO_DATA
 
     def jumps(self):
         start = self.size * math.sin(self.phase)
@@ -201,8 +169,8 @@ class HarmonicSignal(Signal):
 
 @dataclass(frozen=True)
 class SweepSignal(Signal):
-    """A sin θ(t) for 0 ≤ t ≤ T, instantaneous frequency θ'/2π from f₀ to f₁, linear or
-    logarithmic in time; zero after T."""
+    """A sin θ(t) for 0 ≤ t < T, instantaneous frequency θ'/2π from f₀ to f₁, linear or
+    logarithmic in time; zero from T on."""
 
     size: float
     start: float
@@ -210,34 +178,12 @@ class SweepSignal(Signal):
     duration: float
     logarithmic: bool
 
-    def _theta(self, t):
-        f0, f1, T = self.start, self.stop, self.duration
-        if self.logarithmic and f1 != f0:
-            k = math.log(f1 / f0) / T
-            theta = 2 * np.pi * f0 * np.expm1(k * t) / k
-            d1 = 2 * np.pi * f0 * np.exp(k * t)
-            d2 = d1 * k
-        else:
-            rate = (f1 - f0) / T
-            theta = 2 * np.pi * (f0 * t + 0.5 * rate * t * t)
-            d1 = 2 * np.pi * (f0 + rate * t)
-            d2 = np.full_like(t, 2 * np.pi * rate)
-        return theta, d1, d2, t < T
-
-    def _value(self, t):
-        theta, _, _, on = self._theta(t)
-        return np.where(on, self.size * np.sin(theta), 0.0)
-
-    def _rate(self, t):
-        theta, d1, _, on = self._theta(t)
-        return np.where(on, self.size * np.cos(theta) * d1, 0.0)
-
-    def _rate2(self, t):
-        theta, d1, d2, on = self._theta(t)
-        return np.where(on, self.size * (-np.sin(theta) * d1 * d1 + np.cos(theta) * d2), 0.0)
+    def code(self):
+        parameters = (self.size, self.start, self.stop, self.duration, float(self.logarithmic))
+        return signal_kernels.SWEEP, parameters, _NO_DATA
 
     def jumps(self):
-        theta_end = self._theta(np.array([self.duration]))[0][0]
+        theta_end = signal_kernels.sweep_phase(np.array([self.code()[1]]), 0, self.duration)[0]
         end = self.size * math.sin(theta_end)
         return [(self.duration, -end)] if abs(end) > 1e-12 * abs(self.size) else []
 
@@ -246,24 +192,19 @@ class SweepSignal(Signal):
         return abs(self.size)
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class TableSignal(Signal):
     """Piecewise-linear through (times, values); held at the end values outside them."""
 
     times: np.ndarray
     values: np.ndarray
 
-    def _value(self, t):
-        return np.interp(t, self.times, self.values)
+    def __post_init__(self):
+        data = np.concatenate([np.asarray(self.times, float), np.asarray(self.values, float)])
+        object.__setattr__(self, "_data", data)
 
-    def _rate(self, t):
-        slopes = np.diff(self.values) / np.diff(self.times)
-        i = np.searchsorted(self.times, t, side="right") - 1
-        inside = (i >= 0) & (i < len(slopes))
-        return np.where(inside, slopes[np.clip(i, 0, len(slopes) - 1)], 0.0)
-
-    def _rate2(self, t):
-        return np.zeros_like(t)
+    def code(self):
+        return signal_kernels.TABLE, (), self._data
 
     def jumps(self):
         start = float(np.interp(0.0, self.times, self.values))
@@ -276,72 +217,23 @@ class TableSignal(Signal):
 
 @dataclass(frozen=True, eq=False)
 class RoadSignal(Signal):
-    """An ISO 8608 random road under a wheel moving at ``speed``, from ``seed``."""
+    """An ISO 8608 random road under a wheel moving at ``speed``, from ``seed``: the
+    synthesised profile read by cubic Hermite interpolation of its values and exact
+    slopes, faded in from zero over :data:`ROAD_FADE_IN`."""
 
     road_class: str
     speed: float
     seed: int
 
     def __post_init__(self):
-        object.__setattr__(self, "_grid", _road_profile(self.road_class, self.seed))
+        object.__setattr__(self, "_data", _road_profile(self.road_class, self.seed))
 
-    def _position(self, t):
-        return t * self.speed
-
-    def _interp(self, x):
-        """Cubic Hermite interpolation of profile z and slope z' (per metre): z, z', z''."""
-        z, dz = self._grid
-        h = ROAD_SPACING
-        s = x / h
-        i = np.floor(s).astype(np.int64)
-        u = s - i
-        i0 = i % ROAD_POINTS
-        i1 = (i + 1) % ROAD_POINTS
-        z0, z1, d0, d1 = z[i0], z[i1], dz[i0] * h, dz[i1] * h
-        u2, u3 = u * u, u * u * u
-        value = (2 * u3 - 3 * u2 + 1) * z0 + (u3 - 2 * u2 + u) * d0 + (-2 * u3 + 3 * u2) * z1 + (u3 - u2) * d1
-        slope = ((6 * u2 - 6 * u) * z0 + (3 * u2 - 4 * u + 1) * d0 + (-6 * u2 + 6 * u) * z1 + (3 * u2 - 2 * u) * d1) / h
-        curve = ((12 * u - 6) * z0 + (6 * u - 4) * d0 + (-12 * u + 6) * z1 + (6 * u - 2) * d1) / (h * h)
-        return value, slope, curve
-
-    def _fade(self, x):
-        """Half-cosine fade-in over ROAD_FADE_IN metres: w, w', w'' per metre."""
-        L = ROAD_FADE_IN
-        on = x < L
-        arg = np.pi * np.minimum(x, L) / L
-        w = np.where(on, 0.5 * (1 - np.cos(arg)), 1.0)
-        dw = np.where(on, 0.5 * np.pi / L * np.sin(arg), 0.0)
-        d2w = np.where(on, 0.5 * (np.pi / L) ** 2 * np.cos(arg), 0.0)
-        return w, dw, d2w
-
-    def _value(self, t):
-        x = self._position(t)
-        z, _, _ = self._interp(x)
-        w, _, _ = self._fade(x)
-        return w * z
-
-    def _rate(self, t):
-        x = self._position(t)
-        z, dz, _ = self._interp(x)
-        w, dw, _ = self._fade(x)
-        return self.speed * (w * dz + dw * z)
-
-    def _rate2(self, t):
-        x = self._position(t)
-        z, dz, d2z = self._interp(x)
-        w, dw, d2w = self._fade(x)
-        return self.speed**2 * (w * d2z + 2 * dw * dz + d2w * z)
-
-    def _motion(self, t):
-        x = self._position(t)
-        z, dz, d2z = self._interp(x)
-        w, dw, d2w = self._fade(x)
-        v = self.speed
-        return w * z, v * (w * dz + dw * z), v * v * (w * d2z + 2 * dw * dz + d2w * z)
+    def code(self):
+        return signal_kernels.ROAD, (self.speed, ROAD_SPACING, ROAD_FADE_IN), self._data
 
     @property
     def amplitude(self):
-        return float(np.max(np.abs(self._grid[0])))
+        return float(np.max(np.abs(self._data[:ROAD_POINTS])))
 
     def temporal_psd(self, f):
         """One-sided PSD of the road displacement at the wheel, m²/Hz, at ``f`` Hz:
@@ -352,11 +244,12 @@ class RoadSignal(Signal):
         return np.where(inside, iso8608_psd(self.road_class, np.where(inside, n, N0)) / self.speed, 0.0)
 
 
-_PROFILE_CACHE: dict[tuple[str, int], tuple[np.ndarray, np.ndarray]] = {}
+_PROFILE_CACHE: dict[tuple[str, int], np.ndarray] = {}
 
 
-def _road_profile(road_class: str, seed: int) -> tuple[np.ndarray, np.ndarray]:
-    """Profile z (m) and slope z' (m/m) on the grid x_j = j·ROAD_SPACING, from the seed."""
+def _road_profile(road_class: str, seed: int) -> np.ndarray:
+    """Profile z (m) then slope z' (m/m) on the grid x_j = j·ROAD_SPACING, from the
+    seed, as one array of 2 × ROAD_POINTS."""
     key = (road_class, seed)
     if key not in _PROFILE_CACHE:
         length = ROAD_SPACING * ROAD_POINTS
@@ -371,7 +264,7 @@ def _road_profile(road_class: str, seed: int) -> tuple[np.ndarray, np.ndarray]:
         coefficients = amplitude * np.exp(1j * phase)
         z = np.fft.irfft(coefficients, n=ROAD_POINTS) * (ROAD_POINTS / 2)
         dz = np.fft.irfft(coefficients * (2j * np.pi * n), n=ROAD_POINTS) * (ROAD_POINTS / 2)
-        _PROFILE_CACHE[key] = (z, dz)
+        _PROFILE_CACHE[key] = np.concatenate([z, dz])
     return _PROFILE_CACHE[key]
 
 

@@ -20,6 +20,8 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
+from lumped.signal_kernels import HOT, input_values
+
 __all__ = [
     "SPRING", "DAMPER", "ASYMMETRIC_DAMPER", "CURVE_DAMPER", "INERTER",
     "body_accelerations", "element_state", "rk_chunk", "symplectic_chunk", "affine_chunk",
@@ -29,6 +31,8 @@ SPRING, DAMPER, ASYMMETRIC_DAMPER, CURVE_DAMPER, INERTER = 0, 1, 2, 3, 4
 
 # Status codes returned by the chunk kernels.
 OK, DIVERGED = 0, 1
+#: Ends of steps read the inputs this fraction of a step early (their left limits).
+LEFT_LIMIT = 1e-9
 
 
 @njit(cache=True, inline="always", error_model="numpy")
@@ -65,12 +69,12 @@ def _curve_force(dv, lo, hi, cv, cf):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def body_accelerations(q, v, U, Ud, Udd, FF, j, col, model, acc, rates):
+def body_accelerations(q, v, U, Ud, Udd, FF, col, model, acc, rates):
     """Fill ``acc`` (n) with body accelerations and ``rates`` (3) with the power
     dissipated, delivered by supports and delivered by forces (W).
 
-    Inputs are read as ``U[j, col, s]`` (support displacement), ``Ud`` (velocity),
-    ``Udd`` (acceleration) and ``FF[j, col, f]`` (force values): the chunk kernels'
+    Inputs are read as ``U[col, s]`` (support displacement), ``Ud`` (velocity),
+    ``Udd`` (acceleration) and ``FF[col, f]`` (force values): the chunk kernels'
     stage tables are passed whole rather than sliced, since every array handed to a
     compiled function costs reference counting in the hot loop.
 
@@ -103,11 +107,11 @@ def body_accelerations(q, v, U, Ud, Udd, FF, j, col, model, acc, rates):
             force[a] += f
             force[b] -= f
         else:
-            sa = Ud[j, col, a - n] if a >= n else 0.0
-            sb = Ud[j, col, b - n] if b >= n else 0.0
+            sa = Ud[col, a - n] if a >= n else 0.0
+            sb = Ud[col, b - n] if b >= n else 0.0
             # (no helper function here: passing arrays to one costs reference counting)
-            d = (q[b] if b < n else U[j, col, b - n]) - (q[a] if a < n else U[j, col, a - n])
-            dv = (v[b] if b < n else Ud[j, col, b - n]) - (v[a] if a < n else Ud[j, col, a - n])
+            d = (q[b] if b < n else U[col, b - n]) - (q[a] if a < n else U[col, a - n])
+            dv = (v[b] if b < n else Ud[col, b - n]) - (v[a] if a < n else Ud[col, a - n])
             f = lk[e] * d + lc[e] * dv
             dissipated += lc[e] * dv * dv
             supports += f * (sb - sa)
@@ -119,8 +123,8 @@ def body_accelerations(q, v, U, Ud, Udd, FF, j, col, model, acc, rates):
         e = nonlinear[m]
         a = ea[e]
         b = eb[e]
-        d = (q[b] if b < n else U[j, col, b - n]) - (q[a] if a < n else U[j, col, a - n])
-        dv = (v[b] if b < n else Ud[j, col, b - n]) - (v[a] if a < n else Ud[j, col, a - n])
+        d = (q[b] if b < n else U[col, b - n]) - (q[a] if a < n else U[col, a - n])
+        dv = (v[b] if b < n else Ud[col, b - n]) - (v[a] if a < n else Ud[col, a - n])
         kd = kind[e]
         if kd == SPRING:
             f = _spring_force(d, k[e], fs[e], acts[e], gap[e], gk[e])
@@ -130,8 +134,8 @@ def body_accelerations(q, v, U, Ud, Udd, FF, j, col, model, acc, rates):
         else:
             f = _curve_force(dv, coff[e], coff[e + 1], cv, cf)
             dissipated += f * dv
-        sa = Ud[j, col, a - n] if a >= n else 0.0
-        sb = Ud[j, col, b - n] if b >= n else 0.0
+        sa = Ud[col, a - n] if a >= n else 0.0
+        sb = Ud[col, b - n] if b >= n else 0.0
         supports += f * (sb - sa)
         if a < n:
             force[a] += f
@@ -145,16 +149,16 @@ def body_accelerations(q, v, U, Ud, Udd, FF, j, col, model, acc, rates):
         b = eb[e]
         f = 0.0
         if a >= n:
-            f -= k[e] * Udd[j, col, a - n]
+            f -= k[e] * Udd[col, a - n]
         if b >= n:
-            f += k[e] * Udd[j, col, b - n]
+            f += k[e] * Udd[col, b - n]
         if a < n:
             force[a] += f
         if b < n:
             force[b] -= f
     work = 0.0
     for i in range(fbody.shape[0]):
-        load = fscale[i] * FF[j, col, i]
+        load = fscale[i] * FF[col, i]
         force[fbody[i]] += load
         work += load * v[fbody[i]]
     for i in range(n):
@@ -167,9 +171,9 @@ def body_accelerations(q, v, U, Ud, Udd, FF, j, col, model, acc, rates):
         a = ea[e]
         b = eb[e]
         if a >= n or b >= n:
-            sa = Ud[j, col, a - n] if a >= n else 0.0
-            sb = Ud[j, col, b - n] if b >= n else 0.0
-            relative = (acc[b] if b < n else Udd[j, col, b - n]) - (acc[a] if a < n else Udd[j, col, a - n])
+            sa = Ud[col, a - n] if a >= n else 0.0
+            sb = Ud[col, b - n] if b >= n else 0.0
+            relative = (acc[b] if b < n else Udd[col, b - n]) - (acc[a] if a < n else Udd[col, a - n])
             supports += k[e] * relative * (sb - sa)
     rates[0] = dissipated
     rates[1] = supports
@@ -259,7 +263,7 @@ def _spring_energy(d, k, fs, acts, gap, gk):
 
 
 @njit(cache=True, error_model="numpy")
-def _contact_values(q, U, j, col, n, watch_element, watch_kind, table, out):
+def _contact_values(q, U, col, n, watch_element, watch_kind, table, out):
     """For each watched element, a value whose sign change is an event: for one-sided
     springs fs + kδ (the force it would carry), for end stops |δ| − gap."""
     ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf = table
@@ -267,8 +271,8 @@ def _contact_values(q, U, j, col, n, watch_element, watch_kind, table, out):
         e = watch_element[w]
         a = ea[e]
         b = eb[e]
-        xa = q[a] if a < n else U[j, col, a - n]
-        xb = q[b] if b < n else U[j, col, b - n]
+        xa = q[a] if a < n else U[col, a - n]
+        xb = q[b] if b < n else U[col, b - n]
         d = xb - xa
         if watch_kind[w] == 0:
             out[w] = fs[e] + k[e] * d
@@ -276,34 +280,73 @@ def _contact_values(q, U, j, col, n, watch_element, watch_kind, table, out):
             out[w] = abs(d) - gap[e]
 
 
-@njit(cache=True, error_model="numpy")
+def _input_rows(program, offsets) -> tuple:
+    """Work arrays U, Ud, Udd (stage times × supports) and FF (× force items)."""
+    supports, forces = len(program[5]), len(program[7])
+    return (*(np.zeros((len(offsets), supports)) for _ in range(3)), np.zeros((len(offsets), forces)))
+
+
+def rk_work(stages: int, n: int, program, offsets, watched: int) -> tuple:
+    """Scratch arrays of :func:`rk_chunk` (its kernel allocates nothing)."""
+    return (np.zeros((stages, n)), np.zeros((stages, n)), np.zeros((stages, 3)), np.zeros(n), np.zeros(n),
+            np.zeros(n), np.zeros(3), np.zeros(watched), *_input_rows(program, offsets))  # fmt: skip
+
+
+def symplectic_work(n: int, program, offsets, watched: int) -> tuple:
+    """Scratch arrays of :func:`symplectic_chunk`."""
+    return (np.zeros(n), np.zeros(3), np.zeros(watched), *_input_rows(program, offsets))
+
+
+def affine_work(nz: int, n: int, program, offsets) -> tuple:
+    """Scratch arrays of :func:`affine_chunk`."""
+    rows = _input_rows(program, offsets)
+    nw = 3 * rows[0].shape[1] + rows[3].shape[1]
+    return (np.zeros(nw), np.zeros(nw), np.zeros(nz), np.zeros(n), np.zeros(n), np.zeros(n), np.zeros(3),
+            np.zeros(3), *rows)  # fmt: skip
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _step_inputs(program, clock, k, h, U, Ud, Udd, FF):
+    """The inputs of global step k at each stage time into rows of U … FF.
+
+    ``clock = (base, grid step, offsets)``: the step starts at base + k·(grid step)
+    (base 0 on the run's grid; for one part of a split step, its start with grid step
+    0) and row c is read at start + offsets[c]·h; rows past the start are read
+    :data:`LEFT_LIMIT`·h early, so that at a jump or a kink on the grid the end of a
+    step sees the value and rates from before it.
+    """
+    base, grid, offsets = clock
+    start = base + k * grid
+    for c in range(offsets.shape[0]):
+        t = start + offsets[c] * h
+        if offsets[c] > 0.0:
+            t -= LEFT_LIMIT * h
+        input_values(t, program, c, U, Ud, Udd, FF)
+
+
+@njit(**HOT)
 def rk_chunk(
     A, B, stage_col, end_col, q, v, energy, h, k0, nsteps,
-    U, Ud, Udd, FF,
-    model,
+    program, clock,
+    model, work,
     out_every, out_q, out_v, out_a, out_e, out_step, n_out,
     watch_element, watch_kind, watch_prev, ev_step, ev_frac, ev_watch, ev_value, n_ev,
     q_limit,
 ):  # fmt: skip
     """Advance ``nsteps`` explicit Runge–Kutta steps (tableau A, B) from global step
-    ``k0``; inputs for step j at stage offset column ``col`` are ``U[j, col]`` etc.
+    ``k0``; stage i reads the inputs of column ``stage_col[i]`` of the step's input
+    rows (:func:`_step_inputs`, from the input ``program`` and the ``clock``).
 
     Samples are written after each step whose global index is a multiple of
     ``out_every``. Returns (status, steps done, samples written, events written).
     """
     n = q.shape[0]
     s = B.shape[0]
-    kq = np.zeros((s, n))
-    kv = np.zeros((s, n))
-    ke = np.zeros((s, 3))
-    qs = np.zeros(n)
-    vs = np.zeros(n)
-    acc = np.zeros(n)
-    rates = np.zeros(3)
-    values = np.zeros(watch_element.shape[0])
+    kq, kv, ke, qs, vs, acc, rates, values, U, Ud, Udd, FF = work
     m = n_out
     ne = n_ev
     for j in range(nsteps):
+        _step_inputs(program, clock, k0 + j, h, U, Ud, Udd, FF)
         for i in range(s):
             for r in range(n):
                 sq = q[r]
@@ -314,7 +357,7 @@ def rk_chunk(
                         sv += h * A[i, other] * kv[other, r]
                 qs[r] = sq
                 vs[r] = sv
-            body_accelerations(qs, vs, U, Ud, Udd, FF, j, stage_col[i], model, acc, rates)
+            body_accelerations(qs, vs, U, Ud, Udd, FF, stage_col[i], model, acc, rates)
             for r in range(n):
                 kq[i, r] = vs[r]
                 kv[i, r] = acc[r]
@@ -340,12 +383,12 @@ def rk_chunk(
             energy[p] += h * de
         step = k0 + j + 1
         if watch_element.shape[0] > 0:
-            ne = _record_events(q, U, j, end_col, n, watch_element, watch_kind, model[3], watch_prev,
+            ne = _record_events(q, U, end_col, n, watch_element, watch_kind, model[3], watch_prev,
                                 values, step, ev_step, ev_frac, ev_watch, ev_value, ne)  # fmt: skip
         if not (worst <= q_limit):
             return DIVERGED, j + 1, m, ne
         if step % out_every == 0 and m < out_q.shape[0]:
-            body_accelerations(q, v, U, Ud, Udd, FF, j, end_col, model, acc, rates)
+            body_accelerations(q, v, U, Ud, Udd, FF, end_col, model, acc, rates)
             _store(m, step, q, v, acc, energy, out_q, out_v, out_a, out_e, out_step)
             m += 1
     return OK, nsteps, m, ne
@@ -363,9 +406,9 @@ def _store(m, step, q, v, acc, energy, out_q, out_v, out_a, out_e, out_step):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _record_events(q, U, j, col, n, watch_element, watch_kind, table, watch_prev, values, step,
+def _record_events(q, U, col, n, watch_element, watch_kind, table, watch_prev, values, step,
                    ev_step, ev_frac, ev_watch, ev_value, ne):  # fmt: skip
-    _contact_values(q, U, j, col, n, watch_element, watch_kind, table, values)
+    _contact_values(q, U, col, n, watch_element, watch_kind, table, values)
     for w in range(values.shape[0]):
         old = watch_prev[w]
         new = values[w]
@@ -380,11 +423,11 @@ def _record_events(q, U, j, col, n, watch_element, watch_kind, table, watch_prev
     return ne
 
 
-@njit(cache=True, error_model="numpy")
+@njit(**HOT)
 def symplectic_chunk(
     q, v, energy, h, k0, nsteps,
-    U, Ud, Udd, FF,
-    model,
+    program, clock,
+    model, work,
     out_every, out_q, out_v, out_a, out_e, out_step, n_out,
     watch_element, watch_kind, watch_prev, ev_step, ev_frac, ev_watch, ev_value, n_ev,
     q_limit,
@@ -393,13 +436,12 @@ def symplectic_chunk(
     velocity, as in the stability analysis). Inputs: column 0 at the step start,
     column 1 at its end. Energy rates by the rectangle rule (first order, as the method)."""
     n = q.shape[0]
-    acc = np.zeros(n)
-    rates = np.zeros(3)
-    values = np.zeros(watch_element.shape[0])
+    acc, rates, values, U, Ud, Udd, FF = work
     m = n_out
     ne = n_ev
     for j in range(nsteps):
-        body_accelerations(q, v, U, Ud, Udd, FF, j, 0, model, acc, rates)
+        _step_inputs(program, clock, k0 + j, h, U, Ud, Udd, FF)
+        body_accelerations(q, v, U, Ud, Udd, FF, 0, model, acc, rates)
         worst = 0.0
         for r in range(n):
             v[r] += h * acc[r]
@@ -411,42 +453,41 @@ def symplectic_chunk(
             energy[p] += h * rates[p]
         step = k0 + j + 1
         if watch_element.shape[0] > 0:
-            ne = _record_events(q, U, j, 1, n, watch_element, watch_kind, model[3], watch_prev,
+            ne = _record_events(q, U, 1, n, watch_element, watch_kind, model[3], watch_prev,
                                 values, step, ev_step, ev_frac, ev_watch, ev_value, ne)  # fmt: skip
         if not (worst <= q_limit):
             return DIVERGED, j + 1, m, ne
         if step % out_every == 0 and m < out_q.shape[0]:
-            body_accelerations(q, v, U, Ud, Udd, FF, j, 1, model, acc, rates)
+            body_accelerations(q, v, U, Ud, Udd, FF, 1, model, acc, rates)
             _store(m, step, q, v, acc, energy, out_q, out_v, out_a, out_e, out_step)
             m += 1
     return OK, nsteps, m, ne
 
 
-@njit(cache=True, error_model="numpy")
+@njit(**HOT)
 def affine_chunk(
-    G, H0, H1, z, energy, h, k0, nsteps, W, U, Ud, Udd, FF,
-    Qmap, Vmap, VWmap, model,
+    G, H0, H1, z, energy, h, k0, nsteps, program, clock,
+    Qmap, Vmap, VWmap, model, work,
     out_every, out_q, out_v, out_a, out_e, out_step, n_out, q_limit,
 ):  # fmt: skip
     """Linear steppers as one affine map per step, z₁ = G z + H0 w₀ + H1 w₁, where
-    ``W[j, 0] = [u, u', u'', F]`` holds the inputs at step j's start and ``W[j, 1]``
-    at its end (left limits), and ``U[j, c]`` … ``FF[j, c]`` the same split by kind. Body displacement q = Qmap z and velocity v = Vmap z + VWmap w; the
-    acceleration and energy rates come from :func:`body_accelerations`, the rates
-    integrated by the trapezoid rule (second order, as these steppers)."""
+    w₀ = [u, u', u'', F] are the inputs at the step's start (input row 0) and w₁ at
+    its end (row 1, left limits). Body displacement q = Qmap z and velocity
+    v = Vmap z + VWmap w; the acceleration and energy rates come from
+    :func:`body_accelerations`, the rates integrated by the trapezoid rule (second
+    order, as these steppers)."""
     nz = z.shape[0]
     n = Qmap.shape[0]
-    znew = np.zeros(nz)
-    q = np.zeros(n)
-    v = np.zeros(n)
-    acc = np.zeros(n)
-    rates = np.zeros(3)
-    old = np.zeros(3)
-    _affine_body_state(z, W[0, 0], Qmap, Vmap, VWmap, q, v)
-    body_accelerations(q, v, U, Ud, Udd, FF, 0, 0, model, acc, old)
+    w0, w1, znew, q, v, acc, rates, old, U, Ud, Udd, FF = work
+    _step_inputs(program, clock, k0, h, U, Ud, Udd, FF)
+    _input_vector(U, Ud, Udd, FF, 0, w0)
+    _affine_body_state(z, w0, Qmap, Vmap, VWmap, q, v)
+    body_accelerations(q, v, U, Ud, Udd, FF, 0, model, acc, old)
     m = n_out
     for j in range(nsteps):
-        w0 = W[j, 0]
-        w1 = W[j, 1]
+        _step_inputs(program, clock, k0 + j, h, U, Ud, Udd, FF)
+        _input_vector(U, Ud, Udd, FF, 0, w0)
+        _input_vector(U, Ud, Udd, FF, 1, w1)
         for r in range(nz):
             s = 0.0
             for other in range(nz):
@@ -457,7 +498,7 @@ def affine_chunk(
         for r in range(nz):
             z[r] = znew[r]
         _affine_body_state(z, w1, Qmap, Vmap, VWmap, q, v)
-        body_accelerations(q, v, U, Ud, Udd, FF, j, 1, model, acc, rates)
+        body_accelerations(q, v, U, Ud, Udd, FF, 1, model, acc, rates)
         worst = 0.0
         for r in range(n):
             x = abs(q[r])
@@ -473,6 +514,18 @@ def affine_chunk(
             _store(m, step, q, v, acc, energy, out_q, out_v, out_a, out_e, out_step)
             m += 1
     return OK, nsteps, m, 0
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _input_vector(U, Ud, Udd, FF, row, w):
+    """w = [u, u', u'', F] of input row ``row`` (the order of the state space's B)."""
+    ns = U.shape[1]
+    for s in range(ns):
+        w[s] = U[row, s]
+        w[ns + s] = Ud[row, s]
+        w[2 * ns + s] = Udd[row, s]
+    for f in range(FF.shape[1]):
+        w[3 * ns + f] = FF[row, f]
 
 
 @njit(cache=True, inline="always", error_model="numpy")

@@ -24,10 +24,11 @@ from dataclasses import dataclass, field
 import numpy as np
 import scipy.sparse as sp
 
-from lumped import kernels
+from lumped import kernels, signal_kernels
 from lumped.assemble import DENSE_LIMIT, Matrices, assemble, mass_solver
 from lumped.errors import LumpedError
 from lumped.excitation import Signal, signal_for
+from lumped.kernels import LEFT_LIMIT
 from lumped.model import System
 from lumped.stability import StepCheck, check_step, step_count
 from lumped.static import StaticState, static_equilibrium
@@ -44,8 +45,6 @@ MEMORY_FRACTION = 0.25
 #: Energy balance error, as a fraction of the energy through the system, above which a
 #: finished run is flagged as inaccurate.
 BALANCE_WARNING = 0.01
-#: Ends of steps read the inputs this fraction of a step early (their left limits).
-LEFT_LIMIT = 1e-9
 #: Dense mass matrices (inerters between bodies) up to this many bodies.
 DENSE_MASS_LIMIT = 500
 #: scipy.integrate.solve_ivp methods, by the ids the tool uses for them.
@@ -260,11 +259,13 @@ def _element_table(matrices: Matrices, static: StaticState) -> _Elements:
 
 @dataclass(frozen=True)
 class _Inputs:
-    """Support motions and force values as functions of time."""
+    """Support motions and force values as functions of time, and the compiled
+    program (:mod:`lumped.signal_kernels`) the kernels evaluate them with."""
 
     supports: list[tuple[Signal | None, float]]  # (signal, delay) per support
     forces: list[Signal]
     scales: np.ndarray
+    program: tuple
 
     def at(self, t: np.ndarray, before=0.0):
         """u, u', u'' (…, n_supports) and force-input values (…, n_forces) at times t.
@@ -275,25 +276,12 @@ class _Inputs:
         knot on the grid it sees the value and rates from before it.
         """
         t = np.asarray(t, dtype=float) - before
-        shape = t.shape
+        flat = np.ascontiguousarray(t.ravel())
         ns, nf = len(self.supports), len(self.forces)
-        u = np.zeros(shape + (ns,))
-        ud = np.zeros(shape + (ns,))
-        udd = np.zeros(shape + (ns,))
-        done: dict[tuple[int, float], int] = {}  # supports following the same motion share it
-        for s, (signal, delay) in enumerate(self.supports):
-            if signal is None:
-                continue
-            same = done.get((id(signal), delay))
-            if same is None:
-                u[..., s], ud[..., s], udd[..., s] = signal.motion(t - delay)
-                done[(id(signal), delay)] = s
-            else:
-                u[..., s], ud[..., s], udd[..., s] = u[..., same], ud[..., same], udd[..., same]
-        F = np.zeros(shape + (nf,))
-        for j, signal in enumerate(self.forces):
-            F[..., j] = signal.value(t)
-        return u, ud, udd, F
+        u, ud, udd = (np.zeros((len(flat), ns)) for _ in range(3))
+        F = np.zeros((len(flat), nf))
+        signal_kernels.input_series(flat, self.program, u, ud, udd, F)
+        return tuple(x.reshape(t.shape + x.shape[1:]) for x in (u, ud, udd, F))
 
     def jumps(self, duration: float) -> list[tuple[float, int, float]]:
         """(time, support index, size) of every jump in support position in [0, T)."""
@@ -318,7 +306,15 @@ def _inputs(system: System, matrices: Matrices) -> _Inputs:
         support = system.supports[s]
         supports.append((signals[support.motion] if support.motion else None, support.delay))
     forces = [signals[system.forces[f].input] for f in matrices.force_ids]
-    return _Inputs(supports, forces, np.array([system.forces[f].scale for f in matrices.force_ids]))
+    used = list(system.inputs)
+    program = (
+        *signal_kernels.encoded([signals[key].code() for key in used]),
+        np.array([used.index(system.supports[s].motion) if system.supports[s].motion else -1
+                  for s in matrices.support_ids], dtype=np.int64),
+        np.array([delay for _, delay in supports], dtype=float),
+        np.array([used.index(system.forces[f].input) for f in matrices.force_ids], dtype=np.int64),
+    )  # fmt: skip
+    return _Inputs(supports, forces, np.array([system.forces[f].scale for f in matrices.force_ids]), program)
 
 
 def _inverse_mass(matrices: Matrices) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -496,7 +492,7 @@ class _Engine:
         self.watch_prev = np.zeros(len(elements))
         if len(elements):
             u, *_ = self.inputs.at(np.array(0.0))
-            kernels._contact_values(self.q, np.reshape(u, (1, 1, -1)), 0, 0, self.m.n,
+            kernels._contact_values(self.q, np.reshape(u, (1, -1)), 0, self.m.n,
                                     self.watch_element, self.watch_kind, self.table.args(),
                                     self.watch_prev)  # fmt: skip
 
@@ -509,8 +505,8 @@ class _Engine:
         self.count += 1
 
     def _accelerations(self, q, v, u, ud, udd, F, acc, rates):
-        U, Ud, Udd, FF = (np.ascontiguousarray(np.reshape(x, (1, 1, -1))) for x in (u, ud, udd, F))
-        kernels.body_accelerations(q, v, U, Ud, Udd, FF, 0, 0, self.model, acc, rates)
+        U, Ud, Udd, FF = (np.ascontiguousarray(np.reshape(x, (1, -1))) for x in (u, ud, udd, F))
+        kernels.body_accelerations(q, v, U, Ud, Udd, FF, 0, self.model, acc, rates)
 
     # -- the loop
 
@@ -572,35 +568,28 @@ class _Engine:
             array = getattr(self, name)
             setattr(self, name, np.concatenate([array, np.zeros_like(array[:8])]))
 
-    # -- stepping: uniform pieces of steps, stage-input tables, one kernel per family
+    # -- stepping: uniform pieces of steps, inputs evaluated in the kernels, one kernel per family
 
     def _pieces(self, k0: int, count: int, substep=None):
-        """``(first step, steps, step length, stage times)`` of the uniform pieces of
-        steps k0 … k0+count−1: a shortened last step runs on its own, and ``substep``
-        = (start time, length) runs step k0 as one part of a split step. Stage times
-        are computed from the step index, never accumulated; the run ends exactly at T."""
-        offsets = self.offsets
+        """``(first step, steps, step length, clock)`` of the uniform pieces of steps
+        k0 … k0+count−1: a shortened last step runs on its own, and ``substep`` =
+        (start time, length) runs step k0 as one part of a split step. The clock
+        (see :func:`lumped.kernels._step_inputs`) computes stage times from the step
+        index, never accumulating them; the run ends at T."""
         if substep is not None:
             t0, h = substep
-            return [(k0, 1, h, t0 + offsets[None, :] * h)]
+            return [(k0, 1, h, (t0, 0.0, self.offsets))]
         short = self.T - (self.steps - 1) * self.h
         runs = [(k0, count)]
         if k0 + count == self.steps and short != self.h and count > 1:
             runs = [(k0, count - 1), (self.steps - 1, 1)]
-        pieces = []
-        for start, n in runs:
-            h = short if start == self.steps - 1 else self.h
-            times = (start + np.arange(n))[:, None] * self.h + offsets[None, :] * h
-            if start + n == self.steps:
-                times[-1, offsets == 1.0] = self.T
-            pieces.append((start, n, h, times))
-        return pieces
+        return [(start, n, short if start == self.steps - 1 else self.h, (0.0, self.h, self.offsets))
+                for start, n in runs]  # fmt: skip
 
     def _advance(self, k0: int, count: int, substep=None):
         """Steps k0 … k0+count−1 (or one substep); returns (status, steps done)."""
-        for start, n, h, times in self._pieces(k0, count, substep):
-            tables = self.inputs.at(times, before=np.where(self.offsets > 0, LEFT_LIMIT * h, 0.0))
-            status, done = self._kernel(start, n, h, tables)
+        for start, n, h, clock in self._pieces(k0, count, substep):
+            status, done = self._kernel(start, n, h, clock)
             if status != kernels.OK:
                 return status, start - k0 + done
         return kernels.OK, count
@@ -612,20 +601,23 @@ class _Engine:
             self.offsets = np.unique(np.concatenate([c, [1.0]]))
             stage_col = np.searchsorted(self.offsets, c).astype(np.int64)
             end_col = int(np.searchsorted(self.offsets, 1.0))
+            work = kernels.rk_work(len(b), self.m.n, self.inputs.program, self.offsets, len(self.watch_element))
 
-            def kernel(start, n, h, tables):
+            def kernel(start, n, h, clock):
                 status, done, self.count, self.n_ev = kernels.rk_chunk(
                     a, b, stage_col, end_col, self.q, self.v, self.energy, h, start, n,
-                    *tables, self.model, *self._output_buffers(), *self._event_buffers(), self.q_limit,
+                    self.inputs.program, clock, self.model, work,
+                    *self._output_buffers(), *self._event_buffers(), self.q_limit,
                 )  # fmt: skip
                 return status, done
 
         elif isinstance(stepper, SecondOrderStepper) and stepper.scheme == "symplectic-euler":
             self.offsets = np.array([0.0, 1.0])
+            work = kernels.symplectic_work(self.m.n, self.inputs.program, self.offsets, len(self.watch_element))
 
-            def kernel(start, n, h, tables):
+            def kernel(start, n, h, clock):
                 status, done, self.count, self.n_ev = kernels.symplectic_chunk(
-                    self.q, self.v, self.energy, h, start, n, *tables, self.model,
+                    self.q, self.v, self.energy, h, start, n, self.inputs.program, clock, self.model, work,
                     *self._output_buffers(), *self._event_buffers(), self.q_limit,
                 )  # fmt: skip
                 return status, done
@@ -657,20 +649,23 @@ class _Engine:
                 f"this system has {self.m.n}; use an explicit stepper (rk4) for larger systems"
             )
         cache: dict[float, tuple] = {}
+        work = kernels.affine_work(2 * self.m.n, self.m.n, self.inputs.program, self.offsets)
 
-        def kernel(start, n, h, tables):
+        def inputs(time, before=0.0):
+            return np.concatenate(self.inputs.at(np.array(time), before))
+
+        def kernel(start, n, h, clock):
             if h not in cache:
                 cache[h] = affine_maps(self.m, self.stepper, h)
             G, H0, H1, Qmap, Vmap, VWmap, to_state = cache[h]
-            # Inputs at each step's start (column 0) and end (column 1, left limits).
-            W = np.concatenate(tables, axis=2)
-            z = to_state(self.q, self.v, W[0, 0])
+            base, grid, _ = clock
+            z = to_state(self.q, self.v, inputs(base + start * grid))
             status, done, self.count, _ = kernels.affine_chunk(
-                G, H0, H1, z, self.energy, h, start, n, W, *tables, Qmap, Vmap, VWmap,
-                self.model, *self._output_buffers(), self.q_limit,
+                G, H0, H1, z, self.energy, h, start, n, self.inputs.program, clock, Qmap, Vmap, VWmap,
+                self.model, work, *self._output_buffers(), self.q_limit,
             )  # fmt: skip
             self.q = Qmap @ z
-            self.v = Vmap @ z + VWmap @ W[max(done, 1) - 1, 1]
+            self.v = Vmap @ z + VWmap @ inputs(base + (start + max(done, 1) - 1) * grid + h, LEFT_LIMIT * h)
             return status, done
 
         return kernel
@@ -716,7 +711,7 @@ class _Engine:
         if len(self.watch_element):
             u, *_ = self.inputs.at(np.array(time))
             values = np.zeros_like(self.watch_prev)
-            kernels._contact_values(self.q, np.reshape(u, (1, 1, -1)), 0, 0, self.m.n,
+            kernels._contact_values(self.q, np.reshape(u, (1, -1)), 0, self.m.n,
                                     self.watch_element, self.watch_kind, self.table.args(), values)  # fmt: skip
             for w in np.flatnonzero((values > 0) != (self.watch_prev > 0)):
                 self.events.append(Event(time, self.m.element_ids[self.watch_element[w]],
