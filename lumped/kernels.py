@@ -20,6 +20,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
+from lumped.float_mode import flush_subnormals, restore_float_mode
 from lumped.signal_kernels import HOT, input_values
 
 __all__ = [
@@ -180,7 +181,7 @@ def body_accelerations(q, v, U, Ud, Udd, FF, col, model, acc, rates):
     rates[2] = work
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, inline="always", error_model="numpy")
 def element_state(
     q, v, a, u, ud, udd,
     ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
@@ -220,16 +221,17 @@ def element_state(
             energy[e] = 0.5 * k[e] * dv * dv
 
 
-@njit(cache=True, error_model="numpy")
+@njit(**HOT)
 def element_series(
     q, v, a, u, ud, udd,
     ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
-    deflection, force, stored, inerter_energy,
+    deflection, force, stored, inerter_energy, energy,
 ):  # fmt: skip
     """:func:`element_state` over samples (rows of q, v, a, u, ud, udd): fills
     ``deflection`` and ``force`` (samples × elements), and per sample the springs'
-    stored energy and the inerters' kinetic energy (J)."""
-    energy = np.zeros(ea.shape[0])
+    stored energy and the inerters' kinetic energy (J); ``energy`` is work space of
+    one float per element."""
+    mode = flush_subnormals()
     for i in range(q.shape[0]):
         element_state(q[i], v[i], a[i], u[i], ud[i], udd[i], ea, eb, kind, k, c, c2, fs, acts,
                       gap, gk, coff, cv, cf, deflection[i], force[i], energy)  # fmt: skip
@@ -242,6 +244,7 @@ def element_series(
                 s_inerter += energy[e]
         stored[i] = s_spring
         inerter_energy[i] = s_inerter
+    restore_float_mode(mode)
 
 
 @njit(cache=True, inline="always", error_model="numpy")
@@ -343,6 +346,7 @@ def rk_chunk(
     n = q.shape[0]
     s = B.shape[0]
     kq, kv, ke, qs, vs, acc, rates, values, U, Ud, Udd, FF = work
+    mode = flush_subnormals()
     m = n_out
     ne = n_ev
     for j in range(nsteps):
@@ -386,11 +390,13 @@ def rk_chunk(
             ne = _record_events(q, U, end_col, n, watch_element, watch_kind, model[3], watch_prev,
                                 values, step, ev_step, ev_frac, ev_watch, ev_value, ne)  # fmt: skip
         if not (worst <= q_limit):
+            restore_float_mode(mode)
             return DIVERGED, j + 1, m, ne
         if step % out_every == 0 and m < out_q.shape[0]:
             body_accelerations(q, v, U, Ud, Udd, FF, end_col, model, acc, rates)
             _store(m, step, q, v, acc, energy, out_q, out_v, out_a, out_e, out_step)
             m += 1
+    restore_float_mode(mode)
     return OK, nsteps, m, ne
 
 
@@ -437,6 +443,7 @@ def symplectic_chunk(
     column 1 at its end. Energy rates by the rectangle rule (first order, as the method)."""
     n = q.shape[0]
     acc, rates, values, U, Ud, Udd, FF = work
+    mode = flush_subnormals()
     m = n_out
     ne = n_ev
     for j in range(nsteps):
@@ -456,11 +463,13 @@ def symplectic_chunk(
             ne = _record_events(q, U, 1, n, watch_element, watch_kind, model[3], watch_prev,
                                 values, step, ev_step, ev_frac, ev_watch, ev_value, ne)  # fmt: skip
         if not (worst <= q_limit):
+            restore_float_mode(mode)
             return DIVERGED, j + 1, m, ne
         if step % out_every == 0 and m < out_q.shape[0]:
             body_accelerations(q, v, U, Ud, Udd, FF, 1, model, acc, rates)
             _store(m, step, q, v, acc, energy, out_q, out_v, out_a, out_e, out_step)
             m += 1
+    restore_float_mode(mode)
     return OK, nsteps, m, ne
 
 
@@ -479,6 +488,7 @@ def affine_chunk(
     nz = z.shape[0]
     n = Qmap.shape[0]
     w0, w1, znew, q, v, acc, rates, old, U, Ud, Udd, FF = work
+    mode = flush_subnormals()
     _step_inputs(program, clock, k0, h, U, Ud, Udd, FF)
     _input_vector(U, Ud, Udd, FF, 0, w0)
     _affine_body_state(z, w0, Qmap, Vmap, VWmap, q, v)
@@ -509,10 +519,12 @@ def affine_chunk(
             old[p] = rates[p]
         step = k0 + j + 1
         if not (worst <= q_limit):
+            restore_float_mode(mode)
             return DIVERGED, j + 1, m, 0
         if step % out_every == 0 and m < out_q.shape[0]:
             _store(m, step, q, v, acc, energy, out_q, out_v, out_a, out_e, out_step)
             m += 1
+    restore_float_mode(mode)
     return OK, nsteps, m, 0
 
 

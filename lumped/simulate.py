@@ -776,7 +776,7 @@ class _Engine:
         stored = np.zeros(count)
         inerter_energy = np.zeros(count)
         kernels.element_series(q, v, a, u, ud, udd, *self.table.args(), deflection, force, stored,
-                               inerter_energy)  # fmt: skip
+                               inerter_energy, np.zeros(ne))  # fmt: skip
         kinetic = 0.5 * np.einsum("ij,j,ij->i", v, self.m.mass, v) + inerter_energy
         events = self._events()
         return RunResult(
