@@ -7,9 +7,7 @@ from __future__ import annotations
 import numpy as np
 from scipy.integrate import solve_ivp
 
-from lumped.assemble import assemble
 from lumped.model import System
-from lumped.static import static_equilibrium
 
 __all__ = ["simulate_adaptive", "ADAPTIVE_RTOL", "ADAPTIVE_ATOL"]
 
@@ -30,15 +28,15 @@ def simulate_adaptive(
     """Run ``system`` with ``solve_ivp(method=...)`` and sample it at ``output_rate``
     (Hz; default 1 kHz), never stepping further than one sample interval.
     Returns a :class:`~lumped.simulate.RunResult`."""
-    from lumped.simulate import Event, RunError, _Engine
+    from lumped.simulate import Event, RunError, _Engine, prepare
 
-    matrices = assemble(system)
-    static = static_equilibrium(matrices)
+    prepared = prepare(system)
+    matrices = prepared.matrices
     rate = output_rate or 1000.0
     samples = int(round(duration * rate))
     dt = duration / max(samples, 1)
-    engine = _Engine(system, matrices, static, _AdaptiveStepper(stepper_id), dt, duration,
-                     max(samples, 1), 1, max(samples, 1) + 2)  # fmt: skip
+    engine = _Engine(prepared, _AdaptiveStepper(stepper_id), dt, duration, max(samples, 1), 1,
+                     max(samples, 1) + 2)  # fmt: skip
     n = matrices.n
     acc, rates = np.zeros(n), np.zeros(3)
 

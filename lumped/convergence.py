@@ -17,7 +17,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from lumped.model import System
-from lumped.simulate import RunError, simulate
+from lumped.simulate import RunError, prepare, simulate
 from lumped.steppers import get_stepper
 
 __all__ = ["ConvergenceStudy", "convergence_study", "relative_error"]
@@ -62,15 +62,16 @@ def convergence_study(system: System, stepper: str, dt: float, duration: float, 
     if levels < 3:
         raise RunError("a convergence study needs at least 3 step sizes")
     steps = [dt / 2**i for i in range(levels)]
+    prepared = prepare(system)  # one set-up for every run
     # Sample the coarsest run's grid in every run (the finer runs every 2^i steps).
-    runs = [simulate(system, stepper, h, duration, output_every=2**i, check=False) for i, h in enumerate(steps)]
+    runs = [simulate(prepared, stepper, h, duration, output_every=2**i, check=False) for i, h in enumerate(steps)]
     for run in runs:
         if run.status != "completed":
             raise RunError(f"convergence run at dt = {run.dt:g} s {run.status}: {run.message}")
     linear_free = not system.inputs and all(e.is_linear for e in system.elements.values())
     order = get_stepper(stepper).order
     if linear_free:
-        exact = [simulate(system, "exact", h, duration, output_every=2**i, check=False) for i, h in enumerate(steps)]
+        exact = [simulate(prepared, "exact", h, duration, output_every=2**i, check=False) for i, h in enumerate(steps)]
         errors = [relative_error(_states(r, 1), _states(e, 1)) for r, e in zip(runs, exact, strict=True)]
         method = "against the exact discretisation (matrix exponential) at the same samples"
         h_fit, e_fit = steps, errors

@@ -162,11 +162,15 @@ def body_accelerations(q, v, U, Ud, Udd, FF, col, model, acc, rates):
         load = fscale[i] * FF[col, i]
         force[fbody[i]] += load
         work += load * v[fbody[i]]
-    for i in range(n):
-        s = 0.0
-        for p in range(m_ptr[i], m_ptr[i + 1]):
-            s += m_val[p] * force[m_col[p]]
-        acc[i] = s
+    if m_ptr[n] == n:  # diagonal mass: one entry per row
+        for i in range(n):
+            acc[i] = m_val[i] * force[i]
+    else:
+        for i in range(n):
+            s = 0.0
+            for p in range(m_ptr[i], m_ptr[i + 1]):
+                s += m_val[p] * force[m_col[p]]
+            acc[i] = s
     for m in range(inerters.shape[0]):  # an inerter's whole force b·δ'' works on its support
         e = inerters[m]
         a = ea[e]

@@ -34,7 +34,7 @@ from lumped.stability import StepCheck, check_step, step_count
 from lumped.static import StaticState, static_equilibrium
 from lumped.steppers import RungeKuttaStepper, SecondOrderStepper, Stepper, get_stepper
 
-__all__ = ["RunError", "Event", "RunResult", "simulate", "ADAPTIVE_METHODS", "BALANCE_WARNING", "CHUNK_STEPS"]
+__all__ = ["RunError", "Event", "RunResult", "Prepared", "prepare", "simulate", "ADAPTIVE_METHODS", "BALANCE_WARNING", "CHUNK_STEPS"]
 
 #: Steps per compiled chunk between the driver's progress/cancel/divergence checks.
 CHUNK_STEPS = 8192
@@ -351,8 +351,46 @@ def memory_cap() -> int:
 # --------------------------------------------------------------------------- the run
 
 
+@dataclass(frozen=True)
+class Prepared:
+    """The set-up every run of one system shares: assembly, static equilibrium, the
+    element table and the input program the kernels read. Made by :func:`prepare`;
+    pass it to :func:`simulate` in place of the system to run the system many times
+    (a convergence study, a step or duration scan) without repeating the set-up."""
+
+    system: System
+    matrices: Matrices
+    static: StaticState
+    table: _Elements
+    inputs: _Inputs
+    model: tuple  # the kernels' model tuple without its work array (see lumped.kernels)
+
+
+def prepare(system: System) -> Prepared:
+    """Assemble ``system`` and set up what its runs share (see :class:`Prepared`).
+
+    Raises
+    ------
+    RunError
+        A system without bodies, or inerters between too many bodies.
+    lumped.static.StaticError
+        No static equilibrium.
+    """
+    matrices = assemble(system)
+    if matrices.n == 0:
+        raise RunError("the system has no bodies")
+    static = static_equilibrium(matrices)
+    table = _element_table(matrices, static)
+    inputs = _inputs(system, matrices)
+    force_body = np.array([matrices.body_ids.index(system.forces[f].on) for f in matrices.force_ids], dtype=np.int64)
+    model = (table.links(), table.nonlinear(), table.inerters(), table.args(), *_inverse_mass(matrices),
+             force_body, inputs.scales.astype(float))  # fmt: skip
+    return Prepared(system, matrices, static, table, inputs, model)
+
+
+
 def simulate(
-    system: System,
+    system: System | Prepared,
     stepper: str | Stepper | None = None,
     dt: float | None = None,
     duration: float | None = None,
@@ -363,9 +401,9 @@ def simulate(
     cancel: Callable[[], bool] | None = None,
     check: bool = True,
 ) -> RunResult:
-    """Run ``system`` with a fixed-step ``stepper`` (id or :class:`Stepper`) or an
-    adaptive scipy method (``"adaptive-rk45"`` …), from static equilibrium plus the
-    bodies' initial displacements and velocities.
+    """Run ``system`` (or a :class:`Prepared` one) with a fixed-step ``stepper`` (id
+    or :class:`Stepper`) or an adaptive scipy method (``"adaptive-rk45"`` …), from
+    static equilibrium plus the bodies' initial displacements and velocities.
 
     Parameters
     ----------
@@ -389,6 +427,8 @@ def simulate(
         Missing or bad settings, an output too large for memory, or a stepper that
         cannot run this system.
     """
+    prepared = system if isinstance(system, Prepared) else None
+    system = prepared.system if prepared else system
     run = system.run
     stepper = stepper if stepper is not None else run.stepper
     dt = dt if dt is not None else run.dt
@@ -413,10 +453,8 @@ def simulate(
         raise RunError(f"dt must be a positive time step, got {dt!r}")
     if dt > duration:
         dt = duration
-    matrices = assemble(system)
-    if matrices.n == 0:
-        raise RunError("the system has no bodies")
-    static = static_equilibrium(matrices)
+    prepared = prepared or prepare(system)
+    matrices = prepared.matrices
     steps = step_count(dt, duration)
     if output_every is None:
         output_every = max(1, round(1.0 / (output_rate * dt))) if output_rate else 1
@@ -430,29 +468,26 @@ def simulate(
             f"over the cap of {_size(cap)}; lower the output rate or raise the cap"
         )
     verdict = check_step(matrices, stepper, dt, duration) if check else None
-    engine = _Engine(system, matrices, static, stepper, dt, duration, steps, output_every, samples)
+    engine = _Engine(prepared, stepper, dt, duration, steps, output_every, samples)
     return engine.run(progress, cancel, verdict)
 
 
 class _Engine:
     """One fixed-step run: set-up, chunk loop, jumps, post-processing."""
 
-    def __init__(self, system, matrices, static, stepper, dt, duration, steps, output_every, samples):
-        self.system = system
-        self.m = matrices
-        self.static = static
+    def __init__(self, prepared: Prepared, stepper, dt, duration, steps, output_every, samples):
+        system = self.system = prepared.system
+        matrices = self.m = prepared.matrices
+        static = prepared.static
         self.stepper = stepper
         self.h = dt
         self.T = duration
         self.steps = steps
         self.every = output_every
-        self.table = _element_table(matrices, static)
-        self.inputs = _inputs(system, matrices)
-        self.fbody = np.array([matrices.body_ids.index(system.forces[f].on) for f in matrices.force_ids], dtype=np.int64)
-        self.fscale = self.inputs.scales.astype(float)
-        self.model = (self.table.links(), self.table.nonlinear(), self.table.inerters(),
-                      self.table.args(), *_inverse_mass(matrices), self.fbody, self.fscale,
-                      np.zeros(matrices.n))  # fmt: skip
+        self.table = prepared.table
+        self.inputs = prepared.inputs
+        self.fscale = prepared.model[-1]
+        self.model = (*prepared.model, np.zeros(matrices.n))  # work space of its own
         n = matrices.n
         self.q = np.array([system.bodies[b].initial_displacement for b in matrices.body_ids], dtype=float)
         self.v = np.array([system.bodies[b].initial_velocity for b in matrices.body_ids], dtype=float)

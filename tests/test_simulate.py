@@ -1093,3 +1093,22 @@ def test_kernels_flush_subnormals_inside_and_restore_the_callers_mode():
     assert run.velocity[-1, 0] > 0.0  # the normal-sized state itself is kept
     tiny = np.float64(1e-160)
     assert tiny * tiny == pytest.approx(1e-320, rel=1e-3)
+
+
+def test_a_prepared_system_runs_exactly_as_the_system_and_is_reusable():
+    # Consistency of the engine's own set-up (no outside reference needed: the same
+    # arithmetic must give the same bits).
+    from lumped.simulate import prepare
+
+    system = lumped.load(lumped.demo_path("quarter_car"))
+    prepared = prepare(system)
+    direct = simulate(system, "rk4", 1e-3, 1.0, check=False)
+    first = simulate(prepared, "rk4", 1e-3, 1.0, check=False)
+    other = simulate(prepared, "heun", 5e-4, 0.5, check=False)
+    again = simulate(prepared, "rk4", 1e-3, 1.0, check=False)
+    for run in (first, again):
+        np.testing.assert_array_equal(run.displacement, direct.displacement)
+        np.testing.assert_array_equal(run.force, direct.force)
+        np.testing.assert_array_equal(run.dissipated, direct.dissipated)
+        assert [e.time for e in run.events] == [e.time for e in direct.events]
+    assert other.stepper == "heun" and other.time[-1] == 0.5
