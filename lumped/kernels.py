@@ -5,7 +5,9 @@ the three energy rates (dissipation, work by supports, work by forces) from a
 state and the inputs at one instant; the explicit Runge–Kutta kernel (any tableau),
 the symplectic Euler kernel and the output post-processing all call it, so the
 physics lives in one place. Linear systems under implicit or exact steppers go
-through :func:`affine_chunk`, one dense affine map per step.
+through :func:`affine_chunk`, one dense affine map per step; nonlinear systems under
+Newmark, trapezoid or backward Euler through :func:`implicit_chunk`, Newton's method
+on the same element loop.
 
 Layout. Nodes are numbered bodies first (0 … n−1), then supports (n …). Element e
 joins ``ea[e]`` (lower) to ``eb[e]``; its deflection from static equilibrium is
@@ -26,6 +28,7 @@ from lumped.signal_kernels import HOT, input_values
 __all__ = [
     "SPRING", "DAMPER", "ASYMMETRIC_DAMPER", "CURVE_DAMPER", "INERTER",
     "body_accelerations", "element_state", "rk_chunk", "symplectic_chunk", "affine_chunk",
+    "implicit_chunk",
 ]  # fmt: skip
 
 SPRING, DAMPER, ASYMMETRIC_DAMPER, CURVE_DAMPER, INERTER = 0, 1, 2, 3, 4
@@ -390,11 +393,9 @@ def rk_chunk(
                 de += B[i] * ke[i, p]
             energy[p] += h * de
         step = k0 + j + 1
-        if watch_element.shape[0] > 0:
-            ne = _record_events(q, U, end_col, n, watch_element, watch_kind, model[3], watch_prev,
-                                values, step, ev_step, ev_frac, ev_watch, ev_value, ne)  # fmt: skip
-        if not (worst <= q_limit):
-            restore_float_mode(mode)
+        ne = _record_events(q, U, end_col, n, watch_element, watch_kind, model[3], watch_prev,
+                            values, step, ev_step, ev_frac, ev_watch, ev_value, ne)  # fmt: skip
+        if _diverged(worst, q_limit, mode):
             return DIVERGED, j + 1, m, ne
         if step % out_every == 0 and m < out_q.shape[0]:
             body_accelerations(q, v, U, Ud, Udd, FF, end_col, model, acc, rates)
@@ -413,6 +414,35 @@ def _store(m, step, q, v, acc, energy, out_q, out_v, out_a, out_e, out_step):
     for p in range(3):
         out_e[m, p] = energy[p]
     out_step[m] = step
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _largest(q):
+    """max |q|, or NaN when some entry is not a number."""
+    worst = 0.0
+    for r in range(q.shape[0]):
+        x = abs(q[r])
+        if not (x <= worst):  # catches NaN too
+            worst = x
+    return worst
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _trapezoid_energy(energy, old, rates, h):
+    """Energy rates integrated by the trapezoid rule over a step; ``old`` ← ``rates``."""
+    for p in range(3):
+        energy[p] += 0.5 * h * (old[p] + rates[p])
+        old[p] = rates[p]
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _diverged(worst, q_limit, mode):
+    """True (and the caller's float mode restored, as the kernel is about to return)
+    when the largest |displacement| of a step is beyond the limit or not a number."""
+    if worst <= q_limit:
+        return False
+    restore_float_mode(mode)
+    return True
 
 
 @njit(cache=True, inline="always", error_model="numpy")
@@ -463,11 +493,9 @@ def symplectic_chunk(
         for p in range(3):
             energy[p] += h * rates[p]
         step = k0 + j + 1
-        if watch_element.shape[0] > 0:
-            ne = _record_events(q, U, 1, n, watch_element, watch_kind, model[3], watch_prev,
-                                values, step, ev_step, ev_frac, ev_watch, ev_value, ne)  # fmt: skip
-        if not (worst <= q_limit):
-            restore_float_mode(mode)
+        ne = _record_events(q, U, 1, n, watch_element, watch_kind, model[3], watch_prev,
+                            values, step, ev_step, ev_frac, ev_watch, ev_value, ne)  # fmt: skip
+        if _diverged(worst, q_limit, mode):
             return DIVERGED, j + 1, m, ne
         if step % out_every == 0 and m < out_q.shape[0]:
             body_accelerations(q, v, U, Ud, Udd, FF, 1, model, acc, rates)
@@ -490,7 +518,6 @@ def affine_chunk(
     :func:`body_accelerations`, the rates integrated by the trapezoid rule (second
     order, as these steppers)."""
     nz = z.shape[0]
-    n = Qmap.shape[0]
     w0, w1, znew, q, v, acc, rates, old, U, Ud, Udd, FF = work
     mode = flush_subnormals()
     _step_inputs(program, clock, k0, h, U, Ud, Udd, FF)
@@ -513,17 +540,9 @@ def affine_chunk(
             z[r] = znew[r]
         _affine_body_state(z, w1, Qmap, Vmap, VWmap, q, v)
         body_accelerations(q, v, U, Ud, Udd, FF, 1, model, acc, rates)
-        worst = 0.0
-        for r in range(n):
-            x = abs(q[r])
-            if not (x <= worst):
-                worst = x
-        for p in range(3):
-            energy[p] += 0.5 * h * (old[p] + rates[p])
-            old[p] = rates[p]
+        _trapezoid_energy(energy, old, rates, h)
         step = k0 + j + 1
-        if not (worst <= q_limit):
-            restore_float_mode(mode)
+        if _diverged(_largest(q), q_limit, mode):
             return DIVERGED, j + 1, m, 0
         if step % out_every == 0 and m < out_q.shape[0]:
             _store(m, step, q, v, acc, energy, out_q, out_v, out_a, out_e, out_step)
@@ -556,3 +575,152 @@ def _affine_body_state(z, w, Qmap, Vmap, VWmap, q, v):
             sv += VWmap[r, other] * w[other]
         q[r] = sq
         v[r] = sv
+
+
+# Status of :func:`implicit_chunk` when Newton's method does not settle in a step.
+NEWTON_FAILED = 2
+
+
+@njit(**HOT)
+def _accelerations(q, v, U, Ud, Udd, FF, col, model, acc, rates):
+    """:func:`body_accelerations` called rather than inlined, for a kernel that
+    evaluates it at several places (one compiled copy instead of one per place)."""
+    body_accelerations(q, v, U, Ud, Udd, FF, col, model, acc, rates)
+
+
+def implicit_work(n: int, program, offsets, watched: int) -> tuple:
+    """Scratch arrays of :func:`implicit_chunk`."""
+    vectors = tuple(np.zeros(n) for _ in range(10))
+    return (*vectors, np.zeros(3), np.zeros(3), np.zeros(3), np.zeros((n, n)), np.zeros(watched),
+            *_input_rows(program, offsets))  # fmt: skip
+
+
+@njit(**HOT)
+def implicit_chunk(
+    coefficients, q, v, energy, h, k0, nsteps,
+    program, clock,
+    model, work,
+    out_every, out_q, out_v, out_a, out_e, out_step, n_out,
+    watch_element, watch_kind, watch_prev, ev_step, ev_frac, ev_watch, ev_value, n_ev,
+    q_limit, max_iterations,
+):  # fmt: skip
+    """Implicit one-step methods on the second-order form, for nonlinear systems:
+
+        q₁ = q + h v + h² (α_q a + β a₁),   v₁ = v + h (α_v a + γ a₁),
+
+    ``coefficients = (α_q, β, α_v, γ)``, with a₁ the acceleration at (t₁, q₁, v₁),
+    found by Newton's method on R(a₁) = a₁ − a(q₁(a₁), v₁(a₁)). The Jacobian
+    I − β h² ∂a/∂q − γ h ∂a/∂v comes from finite differences of
+    :func:`body_accelerations` itself (the element laws are piecewise affine, so a
+    difference is exact up to rounding away from a kink, and Newton's method on them
+    settles in a few iterations). The acceleration at the chunk's start comes from the
+    state there (so a support jump between chunks is seen). Energy rates by the
+    trapezoid rule. Returns (status, steps done,
+    samples written, events written); status :data:`NEWTON_FAILED` when a step does
+    not settle within ``max_iterations`` evaluations. A correction that does not
+    lower the residual is halved (backtracking), so that the iteration cannot cycle
+    between contact states at a kink.
+    """
+    aq, beta, av, gamma = coefficients
+    qp, vp, a, a1, base, q1, v1, acc, probe, step_change, rates, old, spare, J, values, U, Ud, Udd, FF = work
+    mode = flush_subnormals()
+    n = q.shape[0]
+    m = n_out
+    ne = n_ev
+    _step_inputs(program, clock, k0, h, U, Ud, Udd, FF)
+    _accelerations(q, v, U, Ud, Udd, FF, 0, model, a, old)
+    bq = beta * h * h
+    gv = gamma * h
+    for j in range(nsteps):
+        _step_inputs(program, clock, k0 + j, h, U, Ud, Udd, FF)
+        for r in range(n):
+            qp[r] = q[r] + h * v[r] + h * h * aq * a[r]
+            vp[r] = v[r] + h * av * a[r]
+            a1[r] = a[r]
+        settled = False
+        rounding = False  # the last correction was at the level of rounding
+        previous = np.inf  # residual at the last accepted iterate
+        fraction = 1.0  # of the Newton correction taken (halved when it does not help)
+        for _ in range(max_iterations):
+            for r in range(n):
+                q1[r] = qp[r] + bq * a1[r]
+                v1[r] = vp[r] + gv * a1[r]
+            _accelerations(q1, v1, U, Ud, Udd, FF, 1, model, acc, rates)
+            size = 0.0
+            worst = 0.0
+            for r in range(n):
+                size = max(size, abs(acc[r]), abs(a1[r]))
+                worst = max(worst, abs(acc[r] - a1[r]))
+            if rounding or worst <= 1e-12 * size + 1e-300:
+                settled = True
+                break
+            if worst >= previous and fraction > 1e-3:
+                # Backtrack: at a kink a full correction can jump between contact states.
+                fraction *= 0.5
+                for r in range(n):
+                    a1[r] = base[r] + fraction * step_change[r]
+                continue
+            previous = worst
+            fraction = 1.0
+            for r in range(n):
+                base[r] = a1[r]
+                step_change[r] = acc[r] - a1[r]  # −R
+            for c in range(n):
+                delta = 1e-7 * (abs(a1[c]) + 1e-3 * size + 1e-300)
+                q1[c] += bq * delta
+                v1[c] += gv * delta
+                _accelerations(q1, v1, U, Ud, Udd, FF, 1, model, probe, spare)
+                q1[c] -= bq * delta
+                v1[c] -= gv * delta
+                for r in range(n):
+                    J[r, c] = (1.0 if r == c else 0.0) - (probe[r] - acc[r]) / delta
+            _solve_in_place(J, step_change)
+            correction = 0.0
+            for r in range(n):
+                a1[r] = base[r] + step_change[r]
+                correction = max(correction, abs(step_change[r]))
+            rounding = correction <= 1e-14 * size
+        if not settled:
+            restore_float_mode(mode)
+            return NEWTON_FAILED, j, m, ne
+        for r in range(n):
+            q[r] = q1[r]
+            v[r] = v1[r]
+            a[r] = a1[r]
+        _trapezoid_energy(energy, old, rates, h)
+        step = k0 + j + 1
+        ne = _record_events(q, U, 1, n, watch_element, watch_kind, model[3], watch_prev,
+                            values, step, ev_step, ev_frac, ev_watch, ev_value, ne)  # fmt: skip
+        if _diverged(_largest(q), q_limit, mode):
+            return DIVERGED, j + 1, m, ne
+        if step % out_every == 0 and m < out_q.shape[0]:
+            _store(m, step, q, v, acc, energy, out_q, out_v, out_a, out_e, out_step)
+            m += 1
+    restore_float_mode(mode)
+    return OK, nsteps, m, ne
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _solve_in_place(J, x):
+    """x ← J⁻¹ x by Gaussian elimination with partial pivoting; J is overwritten."""
+    n = x.shape[0]
+    for col in range(n):
+        pivot = col
+        for r in range(col + 1, n):
+            if abs(J[r, col]) > abs(J[pivot, col]):
+                pivot = r
+        if pivot != col:
+            for c in range(n):
+                J[col, c], J[pivot, c] = J[pivot, c], J[col, c]
+            x[col], x[pivot] = x[pivot], x[col]
+        for r in range(col + 1, n):
+            factor = J[r, col] / J[col, col]
+            if factor != 0.0:
+                for c in range(col, n):
+                    J[r, c] -= factor * J[col, c]
+                x[r] -= factor * x[col]
+    for r in range(n - 1, -1, -1):
+        s = x[r]
+        for c in range(r + 1, n):
+            s -= J[r, c] * x[c]
+        x[r] = s / J[r, r]

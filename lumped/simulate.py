@@ -32,7 +32,13 @@ from lumped.kernels import LEFT_LIMIT
 from lumped.model import System
 from lumped.stability import StepCheck, check_step, step_count
 from lumped.static import StaticState, static_equilibrium
-from lumped.steppers import RungeKuttaStepper, SecondOrderStepper, Stepper, get_stepper
+from lumped.steppers import (
+    RungeKuttaStepper,
+    SecondOrderStepper,
+    Stepper,
+    get_stepper,
+    implicit_coefficients,
+)
 
 __all__ = ["RunError", "Event", "RunResult", "Prepared", "prepare", "simulate", "ADAPTIVE_METHODS", "BALANCE_WARNING", "CHUNK_STEPS"]
 
@@ -45,6 +51,10 @@ MEMORY_FRACTION = 0.25
 #: Energy balance error, as a fraction of the energy through the system, above which a
 #: finished run is flagged as inaccurate.
 BALANCE_WARNING = 0.01
+#: Implicit steppers on nonlinear systems: dense Newton systems up to this many bodies,
+#: and at most this many Newton iterations in a step.
+NEWTON_LIMIT = 500
+NEWTON_ITERATIONS = 30
 #: Dense mass matrices (inerters between bodies) up to this many bodies.
 DENSE_MASS_LIMIT = 500
 #: scipy.integrate.solve_ivp methods, by the ids the tool uses for them.
@@ -517,7 +527,7 @@ class _Engine:
         self.watch_element = np.array(elements, dtype=np.int64)
         self.watch_kind = np.array(kinds, dtype=np.int64)
         self.watch_sign = np.array(list(nl.one_sided_sign) + [0.0] * len(nl.end_stop_index))
-        self.ev_capacity = 65536
+        self.ev_capacity = 65536 if len(elements) else 0  # events kept (beyond: counted)
         self.ev_step = np.zeros(self.ev_capacity, dtype=np.int64)
         self.ev_frac = np.zeros(self.ev_capacity)
         self.ev_watch = np.zeros(self.ev_capacity, dtype=np.int64)
@@ -567,6 +577,14 @@ class _Engine:
                 k = end if result[0] == kernels.OK else k + result[1]
             if result[0] == kernels.DIVERGED:
                 status, message = "diverged", self._divergence_message(k, verdict)
+                break
+            if result[0] == kernels.NEWTON_FAILED:
+                status = "diverged"
+                message = (
+                    f"{self.stepper.id}: Newton's method did not settle within {NEWTON_ITERATIONS} "
+                    f"iterations in the step from t = {self._time(k):.6g} s (step {k:,}); the step is too "
+                    "large for the contact changes there; lower dt"
+                )
                 break
             if progress is not None:
                 progress(k / self.steps)
@@ -659,8 +677,33 @@ class _Engine:
 
         else:
             self.offsets = np.array([0.0, 1.0])
-            kernel = self._affine_kernel()
+            coefficients = implicit_coefficients(stepper)
+            if self.m.nonlinear.count and coefficients is not None:
+                kernel = self._implicit_kernel(np.array(coefficients))
+            else:
+                kernel = self._affine_kernel()
         self._kernel = kernel
+
+    def _implicit_kernel(self, coefficients):
+        """Newmark, trapezoid and backward Euler on a nonlinear system: Newton's method
+        in every step (:func:`lumped.kernels.implicit_chunk`), dense up to
+        :data:`NEWTON_LIMIT` bodies."""
+        if self.m.n > NEWTON_LIMIT:
+            raise RunError(
+                f"{self.stepper.id} on a nonlinear system solves a dense Newton system every step, "
+                f"limited to {NEWTON_LIMIT} bodies; this system has {self.m.n}; use an explicit stepper (rk4)"
+            )
+        work = kernels.implicit_work(self.m.n, self.inputs.program, self.offsets, len(self.watch_element))
+
+        def kernel(start, n, h, clock):
+            status, done, self.count, self.n_ev = kernels.implicit_chunk(
+                coefficients, self.q, self.v, self.energy, h, start, n, self.inputs.program, clock,
+                self.model, work, *self._output_buffers(), *self._event_buffers(), self.q_limit,
+                NEWTON_ITERATIONS,
+            )  # fmt: skip
+            return status, done
+
+        return kernel
 
     def _output_buffers(self):
         return (self.every, self.out_q, self.out_v, self.out_a, self.out_e, self.out_step, self.count)
@@ -676,7 +719,8 @@ class _Engine:
             names = ", ".join(self.m.element_ids[i] for i in _nonlinear_indices(self.m))
             raise RunError(
                 f"{self.stepper.id} runs linear systems only; this system has nonlinear "
-                f"elements ({names}); use an explicit Runge–Kutta stepper (rk4, rk38, rk3, heun, euler) or symplectic-euler"
+                f"elements ({names}); use newmark, trapezoid or backward-euler (Newton in every step), "
+                "an explicit Runge–Kutta stepper (rk4, rk38, rk3, heun, euler) or symplectic-euler"
             )
         if self.m.n > DENSE_LIMIT:
             raise RunError(
@@ -825,9 +869,9 @@ class _Engine:
             element_kinds=self.m.element_kinds,
             support_ids=self.m.support_ids,
             force_ids=self.m.force_ids,
-            displacement=q.copy(),
-            velocity=v.copy(),
-            acceleration=a.copy(),
+            displacement=q,  # views of the run's own buffers (the engine ends here)
+            velocity=v,
+            acceleration=a,
             deflection=deflection,
             force=force,
             support_displacement=u,

@@ -35,7 +35,7 @@ from scipy.optimize import minimize_scalar
 from lumped.assemble import DENSE_LIMIT, Matrices
 from lumped.errors import LumpedError
 from lumped.modal import UNDAMPED_ZETA, damped_eigenvalues, stiffest_mode
-from lumped.steppers import RungeKuttaStepper, Stepper
+from lumped.steppers import RungeKuttaStepper, Stepper, implicit_coefficients
 
 __all__ = [
     "ModeCheck",
@@ -325,9 +325,9 @@ def check_step(
         )
     if matrices.nonlinear.count and not runs_nonlinear(stepper):
         notes.append(
-            f"{stepper.id} runs linear systems only for now, and this system has nonlinear "
-            "elements: a run with it is refused (use an explicit Runge–Kutta stepper or "
-            "symplectic-euler)"
+            f"{stepper.id} runs linear systems only, and this system has nonlinear "
+            "elements: a run with it is refused (use newmark, trapezoid or backward-euler, "
+            "an explicit Runge–Kutta stepper or symplectic-euler)"
         )
     run_growth = float(np.max(growth)) if len(growth) else 1.0
     if bound_only:
@@ -442,9 +442,13 @@ def _accurate(stepper: Stepper, eig: np.ndarray, h: float) -> bool:
 
 def runs_nonlinear(stepper: Stepper) -> bool:
     """True for the steppers the engine runs on systems with nonlinear elements: the
-    explicit Runge–Kutta family and symplectic Euler."""
-    return (isinstance(stepper, RungeKuttaStepper) and stepper.explicit) or (
-        getattr(stepper, "scheme", "") == "symplectic-euler"
+    explicit Runge–Kutta family, symplectic Euler, and the implicit steppers written
+    on the second-order form (Newmark, trapezoid, backward Euler: Newton's method in
+    every step)."""
+    return (
+        (isinstance(stepper, RungeKuttaStepper) and stepper.explicit)
+        or getattr(stepper, "scheme", "") == "symplectic-euler"
+        or implicit_coefficients(stepper) is not None
     )
 
 

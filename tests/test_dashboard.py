@@ -683,7 +683,7 @@ def test_quarter_car_run_lists_the_contact_events():
     assert set(events["element"]) == {"suspension_spring", "tyre"}
 
 
-def test_newmark_on_the_nonlinear_quarter_car_shows_the_library_message_and_keeps_results():
+def test_exact_on_the_nonlinear_quarter_car_shows_the_library_message_and_keeps_results():
     at = _tab(_open(), "Run")
     at.text_input(key="step_duration").input("0.5 s").run()
     _run(at)
@@ -691,8 +691,8 @@ def test_newmark_on_the_nonlinear_quarter_car_shows_the_library_message_and_keep
 
     system = _demo_system("quarter_car")
     with pytest.raises(lumped.LumpedError) as info:
-        lumped.simulate.simulate(system, "newmark", 2e-4, 0.5)
-    at.selectbox(key="step_stepper").set_value("newmark").run()
+        lumped.simulate.simulate(system, "exact", 2e-4, 0.5)
+    at.selectbox(key="step_stepper").set_value("exact").run()
     _run(at)
     messages = [_plain(e.value) for e in at.error]
     assert any(_plain(tables.md_escape(str(info.value))) in m for m in messages), messages

@@ -21,6 +21,7 @@ import numpy as np
 from lumped.steppers.tableau import ButcherTableau
 
 __all__ = [
+    "implicit_coefficients",
     "Stepper",
     "RungeKuttaStepper",
     "SecondOrderStepper",
@@ -175,6 +176,30 @@ class ExactStepper(Stepper):
 
 _RK_COST = "{s} force evaluations per step"
 _IMPLICIT_COST = "one sparse solve (matrix factored once) and one force evaluation per step"
+
+
+def implicit_coefficients(stepper: Stepper) -> tuple[float, float, float, float] | None:
+    """``(α_q, β, α_v, γ)`` of an implicit stepper written on the second-order form,
+    q₁ = q + h v + h²(α_q a + β a₁), v₁ = v + h(α_v a + γ a₁), or None.
+
+    Newmark gives (½ − β, β, 1 − γ, γ). A Runge–Kutta tableau qualifies when each
+    stage either sits at the step's start (c = 0, nothing implicit) or is the step's
+    end (c = 1, its row of a equal to b): then v₁ = v + h Σ bᵢ aᵢ and
+    q₁ = q + h v + h² Σⱼ (bA)ⱼ aⱼ, summed over the two kinds of stage — the trapezoid
+    gives (¼, ¼, ½, ½), backward Euler (0, 1, 0, 1).
+    """
+    if isinstance(stepper, SecondOrderStepper) and stepper.scheme == "newmark":
+        return 0.5 - stepper.beta, stepper.beta, 1.0 - stepper.gamma, stepper.gamma
+    if not isinstance(stepper, RungeKuttaStepper) or stepper.explicit:
+        return None
+    t = stepper.tableau
+    start = [i for i in range(t.stages) if t.c[i] == 0 and all(x == 0 for x in t.a[i])]
+    end = [i for i in range(t.stages) if t.c[i] == 1 and tuple(t.a[i]) == tuple(t.b)]
+    if len(start) + len(end) != t.stages:
+        return None
+    bA = [sum(t.b[i] * t.a[i][j] for i in range(t.stages)) for j in range(t.stages)]
+    return (float(sum(bA[j] for j in start)), float(sum(bA[j] for j in end)),
+            float(sum(t.b[i] for i in start)), float(sum(t.b[i] for i in end)))  # fmt: skip
 
 
 def _rk(id, name, order, a, b, c, description):
