@@ -7,6 +7,7 @@ from __future__ import annotations
 import numpy as np
 from scipy.integrate import solve_ivp
 
+from lumped import kernels
 from lumped.model import System
 
 __all__ = ["simulate_adaptive", "ADAPTIVE_RTOL", "ADAPTIVE_ATOL"]
@@ -51,6 +52,7 @@ def simulate_adaptive(
         engine._apply_jump(s, size, time)
     bounds = sorted({0.0, duration, *[j[0] for j in jumps if j[0] > 0.0]})
     y = np.concatenate([engine.q, engine.v, engine.energy])
+    contact = _contact_events(engine)
     pieces = []
     evaluations = 0
     for a, b in zip(bounds[:-1], bounds[1:], strict=True):
@@ -58,12 +60,14 @@ def simulate_adaptive(
         # max_step: an adaptive method that sees a quiet start would otherwise step
         # clean over a short bump or pulse that comes later.
         solution = solve_ivp(rhs, (a, b), y, method=method, t_eval=inside, rtol=rtol, atol=atol,
-                             max_step=1.0 / rate)  # fmt: skip
+                             max_step=1.0 / rate, events=contact or None)  # fmt: skip
         evaluations += solution.nfev
         if solution.status < 0:
             raise RunError(f"{stepper_id} failed at t = {solution.t[-1] if len(solution.t) else a:.6g} s: {solution.message}")
         pieces.append((solution.t, solution.y))
         y = solution.y[:, -1]
+        if contact:
+            _record_contacts(engine, solution.t_events, b, y)
         for time, s, size in [j for j in jumps if j[0] == b]:
             engine.q, engine.v, engine.energy = y[:n].copy(), y[n:2 * n].copy(), y[2 * n:].copy()
             engine._apply_jump(s, size, time)
@@ -87,6 +91,37 @@ def simulate_adaptive(
     result.time = t_all
     result.events = [e for e in result.events if isinstance(e, Event)]
     return result
+
+
+def _contact_events(engine) -> list:
+    """solve_ivp event functions, one per watched element (one-sided spring, end stop):
+    the value whose sign change is a contact change (see lumped.kernels._contact_values)."""
+    n = engine.m.n
+    values = np.zeros(len(engine.watch_element))
+
+    def contact_values(t, y):
+        u, *_ = engine.inputs.at(np.array(t))
+        kernels._contact_values(y[:n], np.reshape(u, (1, -1)), 0, n, engine.watch_element,
+                                engine.watch_kind, engine.table.args(), values)  # fmt: skip
+        return values
+
+    return [lambda t, y, w=w: contact_values(t, y)[w] for w in range(len(values))]
+
+
+def _record_contacts(engine, event_times, end: float, y_end: np.ndarray) -> None:
+    """Events of one piece of an adaptive run, in time order: each root of a watched
+    element's value flips its contact state. Leaves the values at the piece's ``end``
+    in ``engine.watch_prev`` (a jump there compares against them)."""
+    from lumped.simulate import Event
+
+    positive = engine.watch_prev > 0
+    for time, w in sorted((float(t), w) for w, times in enumerate(event_times) for t in times):
+        positive[w] = not positive[w]
+        kind = engine._event_kind(w, 1.0 if positive[w] else -1.0)
+        engine.events.append(Event(time, engine.m.element_ids[engine.watch_element[w]], kind))
+    u, *_ = engine.inputs.at(np.array(end))
+    kernels._contact_values(y_end[: engine.m.n], np.reshape(u, (1, -1)), 0, engine.m.n, engine.watch_element,
+                            engine.watch_kind, engine.table.args(), engine.watch_prev)  # fmt: skip
 
 
 class _AdaptiveStepper:

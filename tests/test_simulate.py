@@ -1196,3 +1196,15 @@ def test_a_prepared_system_runs_exactly_as_the_system_and_is_reusable():
         np.testing.assert_array_equal(run.dissipated, direct.dissipated)
         assert [e.time for e in run.events] == [e.time for e in direct.events]
     assert other.stepper == "heun" and other.time[-1] == 0.5
+
+
+@pytest.mark.parametrize("method", ["adaptive-dop853", "adaptive-radau"])
+def test_adaptive_runs_report_contact_events_at_the_hand_times(method):
+    """Lift-off and landing of the hopper (hand solution in hopper()), found by
+    solve_ivp's event location on the engine's own contact values."""
+    system, _, t1, _, t2 = hopper()
+    result = simulate(system, method, None, t2 + 0.05, output_rate=1000)
+    tyre = [(e.kind, e.time) for e in result.events if e.element == "tyre"]
+    assert [k for k, _ in tyre[:2]] == ["lift-off", "landing"]
+    assert tyre[0][1] == pytest.approx(t1, abs=1e-6)
+    assert tyre[1][1] == pytest.approx(t2, abs=1e-5)
