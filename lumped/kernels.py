@@ -78,15 +78,13 @@ def body_accelerations(q, v, U, Ud, Udd, FF, col, model, acc, rates):
     dissipated, delivered by supports and delivered by forces (W).
 
     Inputs are read as ``U[col, s]`` (support displacement), ``Ud`` (velocity),
-    ``Udd`` (acceleration) and ``FF[col, f]`` (force values): the chunk kernels'
-    stage tables are passed whole rather than sliced, since every array handed to a
-    compiled function costs reference counting in the hot loop.
+    ``Udd`` (acceleration) and ``FF[col, f]`` (force values): row ``col`` of the
+    chunk kernel's input rows, one per stage time of the step.
 
     ``model`` is the tuple built by the driver: ``(links, nonlinear, inerters,
     table, m_ptr, m_col, m_val, fbody, fscale, scratch)``: M⁻¹ as CSR arrays (one
-    entry per row without inerters between bodies; a branch on the mass kind instead
-    made a small system's step six times slower), and ``scratch``, n floats of work
-    space for the nodal forces. ``links = (a, b, k, c)`` are the
+    entry per row, read as a diagonal, without inerters between bodies), and
+    ``scratch``, n floats of work space for the nodal forces. ``links = (a, b, k, c)`` are the
     linear springs and dampers merged per node pair — the tight loop that carries a
     large chain; ``nonlinear`` and ``inerters`` index the element ``table`` (see
     :func:`element_state`), evaluated one by one.
@@ -113,7 +111,6 @@ def body_accelerations(q, v, U, Ud, Udd, FF, col, model, acc, rates):
         else:
             sa = Ud[col, a - n] if a >= n else 0.0
             sb = Ud[col, b - n] if b >= n else 0.0
-            # (no helper function here: passing arrays to one costs reference counting)
             d = (q[b] if b < n else U[col, b - n]) - (q[a] if a < n else U[col, a - n])
             dv = (v[b] if b < n else Ud[col, b - n]) - (v[a] if a < n else Ud[col, a - n])
             f = lk[e] * d + lc[e] * dv
@@ -299,7 +296,7 @@ def _input_rows(program, offsets) -> tuple:
 def rk_work(stages: int, n: int, program, offsets, watched: int) -> tuple:
     """Scratch arrays of :func:`rk_chunk` (its kernel allocates nothing)."""
     return (np.zeros((stages, n)), np.zeros((stages, n)), np.zeros((stages, 3)), np.zeros(n), np.zeros(n),
-            np.zeros(n), np.zeros(3), np.zeros(watched), *_input_rows(program, offsets))  # fmt: skip
+            np.zeros(3), np.zeros(watched), *_input_rows(program, offsets))  # fmt: skip
 
 
 def symplectic_work(n: int, program, offsets, watched: int) -> tuple:
@@ -352,13 +349,14 @@ def rk_chunk(
     """
     n = q.shape[0]
     s = B.shape[0]
-    kq, kv, ke, qs, vs, acc, rates, values, U, Ud, Udd, FF = work
+    kq, kv, ke, qs, acc, rates, values, U, Ud, Udd, FF = work
     mode = flush_subnormals()
     m = n_out
     ne = n_ev
     for j in range(nsteps):
         _step_inputs(program, clock, k0 + j, h, U, Ud, Udd, FF)
         for i in range(s):
+            stage_v = kq[i]  # the stage's velocity is its displacement rate
             for r in range(n):
                 sq = q[r]
                 sv = v[r]
@@ -367,14 +365,8 @@ def rk_chunk(
                         sq += h * A[i, other] * kq[other, r]
                         sv += h * A[i, other] * kv[other, r]
                 qs[r] = sq
-                vs[r] = sv
-            body_accelerations(qs, vs, U, Ud, Udd, FF, stage_col[i], model, acc, rates)
-            for r in range(n):
-                kq[i, r] = vs[r]
-                kv[i, r] = acc[r]
-            ke[i, 0] = rates[0]
-            ke[i, 1] = rates[1]
-            ke[i, 2] = rates[2]
+                stage_v[r] = sv
+            body_accelerations(qs, stage_v, U, Ud, Udd, FF, stage_col[i], model, kv[i], ke[i])
         worst = 0.0
         for r in range(n):
             dq = 0.0
