@@ -12,6 +12,7 @@ by the step check and the run.
 from __future__ import annotations
 
 import functools
+import math
 import re
 import time
 from collections import OrderedDict
@@ -222,7 +223,10 @@ def _verdict(check) -> None:
     else:
         setter = None
     if check.stable:
-        tail = f" Stability limit {limit}" + (f", set by {setter}." if setter else ".")
+        if math.isinf(check.max_stable_dt):
+            tail = " Stable at any step on this system."
+        else:
+            tail = f" Stability limit {limit}" + (f", set by {setter}." if setter else ".")
         st.success(f"**Stable:** {what}.{tail}", icon=":material/check_circle:")
     elif check.max_stable_dt is None:
         st.error(

@@ -89,3 +89,27 @@ def test_a_short_run_draws_its_channels_and_downloads(page, wait_idle, tmp_path)
     assert lines[0].startswith("time [s],") and "tyre.force [N]" in lines[0]
     assert len(lines) == 1 + 501  # 0.5 s at the file's 1 kHz output rate, both ends kept
     assert float(lines[-1].split(",")[0]) == 0.5
+
+
+def test_newmark_runs_the_nonlinear_corner_with_its_events(page, wait_idle, tmp_path):
+    """The quarter-car demo lifts its tyre and meets its end stop: Newmark runs it
+    (Newton's method in every step) from the browser, and the events are listed."""
+    from playwright.sync_api import expect
+
+    _open_tab(page, wait_idle, "Run", "Road figures (spectral)")
+    page.get_by_test_id("stSelectbox").filter(has_text="Stepper").click()
+    page.get_by_role("option").filter(has_text="newmark —").click()
+    wait_idle(page)
+    duration = page.get_by_role("textbox", name="Duration", exact=True)
+    duration.fill("0.5 s")
+    duration.press("Enter")
+    wait_idle(page)
+    page.get_by_role("button", name="Run", exact=True).click()
+    expect(page.get_by_text("Run completed in")).to_be_visible()
+    wait_idle(page)
+    expect(page.get_by_test_id("stMetricValue").filter(has_text="completed")).to_be_visible()
+    expect(page.get_by_test_id("stMetricValue").filter(has_text="4")).to_be_visible()  # the events
+    _settle(page)
+    shot = tmp_path / "newmark.png"
+    page.screenshot(path=str(shot))
+    shutil.copyfile(shot, SHOTS.format("6_newmark_run"))
