@@ -42,7 +42,7 @@ def main(count: int = 1000) -> None:
         simulate(v, "rk4", check=False, **settings)
     one_by_one = (time.perf_counter() - start) / sample * count
 
-    stacked = _stacked([variant_system(base, {k: v[i] for k, v in changes.items()}) for i in range(count)])
+    stacked = _stacked(base, changes, count)
     space = lumped.state_space(lumped.assemble(stacked), dense=False)
     bump = signal_for(base, "speed_bump")  # the one support's motion, shared by every variant
     w = np.zeros(space.B.shape[1])

@@ -72,7 +72,8 @@ class VariantRuns:
 
     ``parameters`` maps each changed ``"group.id.field"`` to its values per variant.
     ``events[i]`` are variant i's events; ``batch`` is the run of all variants laid
-    side by side (its energy account covers the whole batch).
+    side by side (its energy account covers the whole batch); ``base`` is the system
+    the changes apply to (:meth:`system` builds variant i).
     """
 
     parameters: dict[str, np.ndarray]
@@ -88,11 +89,15 @@ class VariantRuns:
     status: str
     message: str
     batch: RunResult
-    systems: list[System]
+    base: System
 
     @property
     def count(self) -> int:
         return self.displacement.shape[0]
+
+    def system(self, i: int) -> System:
+        """Variant ``i`` as a system of its own."""
+        return variant_system(self.base, {path: values[i] for path, values in self.parameters.items()})
 
     def variant(self, i: int) -> VariantRun:
         """Variant ``i``'s channels, in the shape the figures table reads."""
@@ -108,7 +113,7 @@ class VariantRuns:
         variant: the same rows, with the same rules, as for a single run."""
         from lumped.metrics import run_figures
 
-        return [run_figures(self.systems[i], self.variant(i), **options) for i in range(self.count)]
+        return [run_figures(self.system(i), self.variant(i), **options) for i in range(self.count)]
 
 
 @dataclass(frozen=True)
@@ -132,28 +137,44 @@ def _prefix(i: int) -> str:
     return f"v{i}_"
 
 
-def _stacked(variants: list[System]) -> System:
-    """The variants side by side: every body and element id of variant i prefixed
-    ``v{i}_``; supports and inputs shared (a support is a prescribed motion, the same
-    for every variant)."""
-    base = variants[0]
+def _unstacked(problem) -> str:
+    """A problem of the stacked system, told of the variant: "variant 3: bodies.body.mass: …"."""
+    group, _, item = problem.item.partition(".")
+    head, _, rest = item.partition("_")
+    if head.startswith("v") and head[1:].isdigit():
+        return f"variant {head[1:]}: {dataclasses.replace(problem, item=f'{group}.{rest}')}"
+    return str(problem)
+
+
+def _stacked(base: System, values: Mapping[str, np.ndarray], count: int) -> System:
+    """The ``count`` variants of ``base`` side by side, variant i's fields set from
+    ``values`` (one array per ``"group.id.field"``): every body and element id of
+    variant i prefixed ``v{i}_``; supports and inputs shared (a support is a
+    prescribed motion, the same for every variant)."""
+    changes: dict[tuple[str, str], list[tuple[str, np.ndarray]]] = {}
+    for path, v in values.items():
+        group, item_id, field = _parse(path, base)
+        changes.setdefault((group, item_id), []).append((field, v))
     groups: dict[str, dict] = {g: {} for g in _GROUPS}
     groups["supports"] = dict(base.supports)
-    for i, system in enumerate(variants):
+    for i in range(count):
         p = _prefix(i)
 
-        def node(name: str, p=p, system=system) -> str:
-            return name if name in system.supports else p + name
+        def node(name: str, p=p) -> str:
+            return name if name in base.supports else p + name
 
-        for body in system.bodies.values():
-            groups["bodies"][p + body.id] = dataclasses.replace(body, id=p + body.id)
+        def renamed(group: str, item, i=i, p=p, **fields):
+            fields.update({f: float(v[i]) for f, v in changes.get((group, item.id), ())})
+            return dataclasses.replace(item, id=p + item.id, **fields)
+
+        for body in base.bodies.values():
+            groups["bodies"][p + body.id] = renamed("bodies", body)
         for group in ("springs", "dampers", "inerters"):
-            for e in getattr(system, group).values():
-                between = (node(e.between[0]), node(e.between[1]))
-                groups[group][p + e.id] = dataclasses.replace(e, id=p + e.id, between=between)
-        for f in system.forces.values():
-            groups["forces"][p + f.id] = dataclasses.replace(f, id=p + f.id, on=p + f.on)
-    return dataclasses.replace(base, name=f"{base.name} ({len(variants)} variants)", **groups)
+            for e in getattr(base, group).values():
+                groups[group][p + e.id] = renamed(group, e, between=(node(e.between[0]), node(e.between[1])))
+        for f in base.forces.values():
+            groups["forces"][p + f.id] = renamed("forces", f, on=p + f.on)
+    return dataclasses.replace(base, name=f"{base.name} ({count} variants)", **groups)
 
 
 def simulate_variants(
@@ -185,8 +206,11 @@ def simulate_variants(
         if not np.all(np.isfinite(v)):
             raise VariantError(f"variant change {path!r}: every value must be finite")
     count = lengths.pop()
-    variants = [variant_system(system, {p: v[i] for p, v in values.items()}) for i in range(count)]
-    batch = simulate(_stacked(variants), stepper, dt, duration, output_rate, output_every, check=False)
+    stacked = _stacked(system, values, count)
+    problems = check_system(stacked)  # one check of every variant's values
+    if problems:
+        raise VariantError("; ".join(_unstacked(p) for p in problems[:5]) + (" …" if len(problems) > 5 else ""))
+    batch = simulate(stacked, stepper, dt, duration, output_rate, output_every, check=False)
     n = len(system.bodies)
     samples = len(batch.time)
     # Bodies are laid variant by variant; elements by group, so pick them by id.
@@ -220,5 +244,5 @@ def simulate_variants(
         status=batch.status,
         message=batch.message,
         batch=batch,
-        systems=variants,
+        base=system,
     )

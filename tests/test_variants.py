@@ -36,7 +36,7 @@ def test_each_variant_equals_its_own_run():
         ({"springs.nothing.stiffness": [1.0]}, "no item 'nothing'"),
         ({"springs.tyre.stifness": [1.0]}, "no numeric field 'stifness'"),
         ({"tyre.stiffness": [1.0]}, "group.id.field"),
-        ({"bodies.body.mass": [1.0, -2.0]}, "must be finite and positive"),
+        ({"bodies.body.mass": [1.0, -2.0]}, r"variant 1: bodies\.body\.mass: must be finite and positive"),
         ({"bodies.body.mass": [1.0], "bodies.wheel.mass": [1.0, 2.0]}, "same, non-zero number"),
         ({}, "at least one change"),
     ],
