@@ -1,20 +1,29 @@
-"""One-step maps of the steppers that run linear systems as a dense affine map,
-z₁ = G z + H0 w₀ + H1 w₁ (w = [u, u', u'', F] at the step's start and end).
+"""One-step updates of the steppers that run linear systems through their matrices,
+z₁ = step(z, w₀, w₁) (w = [u, u', u'', F] at the step's start and end).
 
-Each map is built by applying the stepper's own update formula (the one its
-docstring and the stability analysis pin down) to the columns of an identity, so
-that the matrices are the update, not a re-derivation of it.
+Each update is the stepper's own formula (the one its docstring and the stability
+analysis pin down), written once on M, C, K and the input coupling. Small systems
+apply it to the columns of an identity to get the dense affine map
+z₁ = G z + H0 w₀ + H1 w₁ that the compiled :func:`lumped.kernels.affine_chunk`
+steps (:func:`affine_maps`); larger ones apply it to the state itself, step by
+step, with sparse factorisations (:func:`sparse_updates`).
 """
 
 from __future__ import annotations
 
 import numpy as np
 import scipy.linalg as la
+import scipy.sparse as sp
+import scipy.sparse.linalg as spla
 
 from lumped.assemble import Matrices, state_space
-from lumped.steppers import ExactStepper, RungeKuttaStepper, SecondOrderStepper, Stepper
+from lumped.steppers import ExactStepper, SecondOrderStepper, Stepper, implicit_coefficients
 
-__all__ = ["affine_maps"]
+__all__ = ["affine_maps", "sparse_updates", "DENSE_MAP_LIMIT"]
+
+#: Bodies up to which the implicit steppers run a dense one-step map (above: sparse
+#: factorisations applied step by step; a dense map costs (2n)² per step and n³ to make).
+DENSE_MAP_LIMIT = 200
 
 
 def affine_maps(matrices: Matrices, stepper: Stepper, h: float):
@@ -24,45 +33,63 @@ def affine_maps(matrices: Matrices, stepper: Stepper, h: float):
     that instant) into the stepper's state z; q = Qmap z, v = Vmap z + VWmap w.
     """
     n = matrices.n
-    ss = state_space(matrices, dense=True)
-    A, B = ss.A, ss.B
-    nw = B.shape[1]
-    M = matrices.M.toarray()
-    K = matrices.K.toarray()
-    C = matrices.C.toarray()
-    coupling = M @ B[n:, :]  # load on the bodies per input: [−K_s, −C_s, −M_s, P]
-    eye_n, zero_n = np.eye(n), np.zeros((n, n))
-    Qmap = np.hstack([eye_n, zero_n])
-    Vmap = np.hstack([zero_n, eye_n])
-    VWmap = np.zeros((n, nw))
+    if isinstance(stepper, ExactStepper):
+        ss = state_space(matrices, dense=True)
+        G, H0, H1 = _first_order_hold(ss.A, ss.B, h)
+        return (G, H0, H1, np.hstack([np.eye(n), np.zeros((n, n))]), np.hstack([np.zeros((n, n)), np.eye(n)]),
+                np.zeros((n, ss.B.shape[1])), lambda q, v, w: np.concatenate([q, v]))  # fmt: skip
+    step, to_state, velocity = _updates(matrices, stepper, h, _dense_solver, dense=True)
+    nw = _coupling(matrices).shape[1]
+    G, H0, H1 = _columns(step, 2 * n, nw)
+    # v is linear in (z, w): read its map off the same function.
+    Vmap = velocity(np.eye(2 * n), np.zeros((nw, 2 * n)))
+    VWmap = velocity(np.zeros((2 * n, nw)), np.eye(nw))
+    return G, H0, H1, np.hstack([np.eye(n), np.zeros((n, n))]), Vmap, VWmap, to_state
+
+
+def sparse_updates(matrices: Matrices, stepper: Stepper, h: float):
+    """``(step, to_state, velocity)`` of ``stepper`` at step ``h`` with sparse
+    factorisations: ``step(z, w0, w1)`` → z₁, ``to_state(q, v, w)`` → z,
+    ``velocity(z, w)`` → body velocities; q is the first half of z."""
+    return _updates(matrices, stepper, h, _sparse_solver, dense=False)
+
+
+def _coupling(matrices: Matrices):
+    """Load on the bodies per input w = [u, u', u'', F]: [−K_s, −C_s, −M_s, P]."""
+    return sp.hstack([-matrices.K_s, -matrices.C_s, -matrices.M_s, matrices.P]).tocsr()
+
+
+def _dense_solver(matrix):
+    factors = la.lu_factor(matrix.toarray() if sp.issparse(matrix) else matrix)
+    return lambda rhs: la.lu_solve(factors, rhs)
+
+
+def _sparse_solver(matrix):
+    factors = spla.splu(sp.csc_matrix(matrix))
+    return factors.solve
+
+
+def _updates(matrices: Matrices, stepper: Stepper, h: float, solver, dense: bool):
+    """The stepper's update, to_state and velocity functions on (z, w), with linear
+    solves made by ``solver(matrix)``; z and w may be vectors or matrices of columns."""
+    M, C, K, coupling = matrices.M, matrices.C, matrices.K, _coupling(matrices)
+    if dense:
+        M, C, K, coupling = M.toarray(), C.toarray(), K.toarray(), coupling.toarray()
+    n = matrices.n
 
     def as_state(q, v, w):
         return np.concatenate([q, v])
 
-    to_state = as_state
-    if isinstance(stepper, ExactStepper):
-        G, H0, H1 = _first_order_hold(A, B, h)
-    elif isinstance(stepper, RungeKuttaStepper):
-        step = _implicit_rk(stepper, A, B, h)
-        G, H0, H1 = _columns(step, 2 * n, nw)
-    elif isinstance(stepper, SecondOrderStepper) and stepper.scheme == "newmark":
-        step = _newmark(M, C, K, coupling, h, stepper.beta, stepper.gamma)
-        G, H0, H1 = _columns(step, 2 * n, nw)
-    elif isinstance(stepper, SecondOrderStepper) and stepper.scheme == "central-difference":
-        S = np.linalg.inv(M / h + C / 2)
-        step = _central_difference(M, C, K, coupling, h, S)
-        G, H0, H1 = _columns(step, 2 * n, nw)
-        Vmap = np.hstack([-0.5 * S @ K, S @ M / h])
-        VWmap = 0.5 * S @ coupling
-        Minv = np.linalg.inv(M)
+    def own_velocity(z, w):
+        return z[n:]
 
-        def to_state(q, v, w):
-            acceleration = Minv @ (coupling @ w - K @ q - C @ v)
-            return np.concatenate([q, v - 0.5 * h * acceleration])
-
-    else:
-        raise ValueError(f"no affine map for stepper {stepper.id!r}")
-    return G, H0, H1, Qmap, Vmap, VWmap, to_state
+    coefficients = implicit_coefficients(stepper)
+    if coefficients is not None:
+        step = _second_order_implicit(M, C, K, coupling, h, coefficients, solver)
+        return step, as_state, own_velocity
+    if isinstance(stepper, SecondOrderStepper) and stepper.scheme == "central-difference":
+        return _central_difference(M, C, K, coupling, h, solver)
+    raise ValueError(f"no update on the matrices for stepper {stepper.id!r}")
 
 
 def _columns(step, nz: int, nw: int):
@@ -86,48 +113,47 @@ def _first_order_hold(A, B, h):
     return Phi, Gamma0 - Gamma1 / h, Gamma1 / h
 
 
-def _implicit_rk(stepper: RungeKuttaStepper, A, B, h):
-    """A Runge–Kutta step on x' = A x + B w with stage inputs w(t + c_i h), c_i ∈ {0, 1}."""
-    a, b, c = stepper.tableau.arrays()
-    if not np.all(np.isin(c, (0.0, 1.0))):
-        raise ValueError(f"{stepper.id}: stage nodes other than 0 and 1 are not supported here")
-    s, nz = len(b), A.shape[0]
-    system = np.eye(s * nz) - h * np.kron(a, A)
-    lu = la.lu_factor(system)
-
-    def step(x, w0, w1):
-        rhs = np.concatenate([A @ x + B @ (w1 if ci == 1.0 else w0) for ci in c])
-        stages = la.lu_solve(lu, rhs).reshape(s, nz, -1)
-        return x + h * np.tensordot(b, stages, axes=1)
-
-    return step
-
-
-def _newmark(M, C, K, coupling, h, beta, gamma):
-    """Newmark's update on z = (x, v) with loads f = coupling·w (see the stepper's docstring)."""
+def _second_order_implicit(M, C, K, coupling, h, coefficients, solver):
+    """q₁ = q + h v + h²(α_q a + β a₁), v₁ = v + h(α_v a + γ a₁), with a₁ from the
+    equation of motion at the new state (Newmark; the trapezoid and backward Euler
+    written on the second-order form, see :func:`lumped.steppers.implicit_coefficients`),
+    on z = (q, v) and loads f = coupling·w."""
     n = M.shape[0]
-    effective = la.lu_factor(M + gamma * h * C + beta * h * h * K)
-    mass = la.lu_factor(M)
+    aq, beta, av, gamma = coefficients
+    effective = solver(M + gamma * h * C + beta * h * h * K)
+    mass = solver(M)
 
     def step(z, w0, w1):
         x, v = z[:n], z[n:]
-        a0 = la.lu_solve(mass, coupling @ w0 - C @ v - K @ x)
-        predictor_x = x + h * v + h * h * (0.5 - beta) * a0
-        predictor_v = v + h * (1 - gamma) * a0
-        a1 = la.lu_solve(effective, coupling @ w1 - C @ predictor_v - K @ predictor_x)
-        return np.vstack([predictor_x + beta * h * h * a1, predictor_v + gamma * h * a1])
+        a0 = mass(coupling @ w0 - C @ v - K @ x)
+        predictor_x = x + h * v + h * h * aq * a0
+        predictor_v = v + h * av * a0
+        a1 = effective(coupling @ w1 - C @ predictor_v - K @ predictor_x)
+        return np.concatenate([predictor_x + beta * h * h * a1, predictor_v + gamma * h * a1])
 
     return step
 
 
-def _central_difference(M, C, K, coupling, h, S):
+def _central_difference(M, C, K, coupling, h, solver):
     """Central difference on z = (x_n, v_{n−1/2}): (M/h + C/2) v_{n+1/2} =
-    (M/h − C/2) v_{n−1/2} + f_n − K x_n, x_{n+1} = x_n + h v_{n+1/2}."""
+    (M/h − C/2) v_{n−1/2} + f_n − K x_n, x_{n+1} = x_n + h v_{n+1/2}; the velocity at
+    t_n is v_n = (M/h + C/2)⁻¹ (M v_{n−1/2}/h − K x_n/2 + f_n/2)."""
     n = M.shape[0]
+    centred = solver(M / h + C / 2)
+    behind = M / h - C / 2
+    mass = solver(M)
 
     def step(z, w0, w1):
         x, v_half = z[:n], z[n:]
-        v_next = S @ ((M / h - C / 2) @ v_half + coupling @ w0 - K @ x)
-        return np.vstack([x + h * v_next, v_next])
+        v_next = centred(behind @ v_half + coupling @ w0 - K @ x)
+        return np.concatenate([x + h * v_next, v_next])
 
-    return step
+    def velocity(z, w):
+        x, v_half = z[:n], z[n:]
+        return centred(M @ v_half / h - 0.5 * (K @ x) + 0.5 * (coupling @ w))
+
+    def to_state(q, v, w):
+        acceleration = mass(coupling @ w - K @ q - C @ v)
+        return np.concatenate([q, v - 0.5 * h * acceleration])
+
+    return step, to_state, velocity

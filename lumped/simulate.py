@@ -29,10 +29,12 @@ from lumped.assemble import DENSE_LIMIT, Matrices, assemble, mass_solver
 from lumped.errors import LumpedError
 from lumped.excitation import Signal, signal_for
 from lumped.kernels import LEFT_LIMIT
+from lumped.linear_steppers import DENSE_MAP_LIMIT, affine_maps, sparse_updates
 from lumped.model import System
 from lumped.stability import StepCheck, check_step, step_count
 from lumped.static import StaticState, static_equilibrium
 from lumped.steppers import (
+    ExactStepper,
     RungeKuttaStepper,
     SecondOrderStepper,
     Stepper,
@@ -713,8 +715,6 @@ class _Engine:
                 self.ev_watch, self.ev_value, self.n_ev)  # fmt: skip
 
     def _affine_kernel(self):
-        from lumped.linear_steppers import affine_maps
-
         if self.m.nonlinear.count:
             names = ", ".join(self.m.element_ids[i] for i in _nonlinear_indices(self.m))
             raise RunError(
@@ -722,16 +722,17 @@ class _Engine:
                 f"elements ({names}); use newmark, trapezoid or backward-euler (Newton in every step), "
                 "an explicit Runge–Kutta stepper (rk4, rk38, rk3, heun, euler) or symplectic-euler"
             )
-        if self.m.n > DENSE_LIMIT:
+        exact = isinstance(self.stepper, ExactStepper)
+        if exact and self.m.n > DENSE_LIMIT:
             raise RunError(
                 f"{self.stepper.id} builds a dense one-step matrix, limited to {DENSE_LIMIT} bodies; "
-                f"this system has {self.m.n}; use an explicit stepper (rk4) for larger systems"
+                f"this system has {self.m.n}; use an explicit stepper (rk4) or an implicit one for larger systems"
             )
+        if not exact and self.m.n > DENSE_MAP_LIMIT:
+            return self._sparse_kernel()
         cache: dict[float, tuple] = {}
         work = kernels.affine_work(2 * self.m.n, self.m.n, self.inputs.program, self.offsets)
-
-        def inputs(time, before=0.0):
-            return np.concatenate(self.inputs.at(np.array(time), before))
+        inputs = self._input_vector
 
         def kernel(start, n, h, clock):
             if h not in cache:
@@ -746,6 +747,47 @@ class _Engine:
             self.q = Qmap @ z
             self.v = Vmap @ z + VWmap @ inputs(base + (start + max(done, 1) - 1) * grid + h, LEFT_LIMIT * h)
             return status, done
+
+        return kernel
+
+    def _input_vector(self, time: float, before: float = 0.0) -> np.ndarray:
+        """w = [u, u', u'', F] at ``time`` (read ``before`` seconds early)."""
+        return np.concatenate(self.inputs.at(np.array(time), before))
+
+    def _sparse_kernel(self):
+        """An implicit stepper on a linear system above DENSE_MAP_LIMIT bodies: its
+        update applied step by step with sparse factorisations (made once per step
+        length), in Python; the samples, energy rates (trapezoid rule) and
+        divergence check as in :func:`lumped.kernels.affine_chunk`."""
+        cache: dict[float, tuple] = {}
+        acc, rates, old = np.zeros(self.m.n), np.zeros(3), np.zeros(3)
+        n_bodies = self.m.n
+
+        def kernel(start, n, h, clock):
+            if h not in cache:
+                cache[h] = sparse_updates(self.m, self.stepper, h)
+            step, to_state, velocity = cache[h]
+            base, grid, _ = clock
+            w0 = self._input_vector(base + start * grid)
+            z = to_state(self.q, self.v, w0)
+            self._accelerations(self.q, self.v, *self.inputs.at(np.array(base + start * grid)), acc, old)
+            for j in range(n):
+                t0 = base + (start + j) * grid
+                w1 = self._input_vector(t0 + h, LEFT_LIMIT * h)
+                z = step(z, w0, w1)
+                self.q, self.v = z[:n_bodies], velocity(z, w1)
+                self._accelerations(self.q, self.v, *self.inputs.at(np.array(t0 + h), LEFT_LIMIT * h), acc, rates)
+                self.energy += 0.5 * h * (old + rates)
+                old[:] = rates
+                if not (np.max(np.abs(self.q)) <= self.q_limit):
+                    return kernels.DIVERGED, j + 1
+                if (start + j + 1) % self.every == 0 and self.count < len(self.out_step):
+                    i = self.count
+                    self.out_q[i], self.out_v[i], self.out_a[i], self.out_e[i] = self.q, self.v, acc, self.energy
+                    self.out_step[i] = start + j + 1
+                    self.count += 1
+                w0 = self._input_vector(t0 + h)
+            return kernels.OK, n
 
         return kernel
 
