@@ -175,7 +175,7 @@ class ExactStepper(Stepper):
 
 
 _RK_COST = "{s} force evaluations per step"
-_IMPLICIT_COST = "one sparse solve (matrix factored once) and one force evaluation per step"
+_IMPLICIT_COST = "linear systems: one solve per step (matrix factored once); nonlinear: Newton iterations per step"
 
 
 def implicit_coefficients(stepper: Stepper) -> tuple[float, float, float, float] | None:
