@@ -119,10 +119,23 @@ def _quantity_arg(dimension: str):
     return convert
 
 
+def _attach_negative_values(argv: list[str]) -> list[str]:
+    """``--dt -1ms`` as ``--dt=-1ms``: argparse takes a value that starts with a minus
+    sign for an option, which would hide the real problem (a negative step) behind
+    "expected one argument"."""
+    out: list[str] = []
+    for token in argv:
+        if out and out[-1].startswith("--") and "=" not in out[-1] and re.match(r"-\.?\d", token):
+            out[-1] = f"{out[-1]}={token}"
+        else:
+            out.append(token)
+    return out
+
+
 def main(argv: list[str] | None = None) -> int:
     """Run the command line; returns the exit code (the console script exits with it)."""
     try:
-        args = _parser().parse_args(argv)
+        args = _parser().parse_args(_attach_negative_values(sys.argv[1:] if argv is None else list(argv)))
     except UsageError as exc:
         print(str(exc), file=sys.stderr)
         return EXIT_BAD_INPUT

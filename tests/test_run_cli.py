@@ -132,6 +132,13 @@ def test_options_override_the_run_table(seat_file, tmp_path):
     np.testing.assert_allclose(values[:, 0], np.arange(301) * 1e-3, rtol=0, atol=1e-15)
 
 
+@pytest.mark.parametrize("value", ["-1ms", "-0.5 ms", "-.2"])
+def test_a_negative_step_is_named_as_such(seat_file, tmp_path, capsys, value):
+    code = main(["run", str(seat_file), "--dt", value, "--out", str(tmp_path / "x.csv"), "--quiet"])
+    assert code == 2
+    assert "dt must be a positive time step" in capsys.readouterr().err
+
+
 def test_parquet_has_the_same_columns_and_values(seat_file, tmp_path):
     csv_out, parquet_out = tmp_path / "run.csv", tmp_path / "run.parquet"
     assert main(["run", str(seat_file), "--out", str(csv_out), "--quiet"]) == 0
