@@ -8,7 +8,6 @@ import numpy as np
 from scipy.integrate import solve_ivp
 
 from lumped import kernels
-from lumped.model import System
 
 __all__ = ["simulate_adaptive", "ADAPTIVE_RTOL", "ADAPTIVE_ATOL"]
 
@@ -18,7 +17,7 @@ ADAPTIVE_ATOL = 1e-10
 
 
 def simulate_adaptive(
-    system: System,
+    system,
     method: str,
     stepper_id: str,
     duration: float,
@@ -26,12 +25,12 @@ def simulate_adaptive(
     rtol: float = ADAPTIVE_RTOL,
     atol: float = ADAPTIVE_ATOL,
 ):
-    """Run ``system`` with ``solve_ivp(method=...)`` and sample it at ``output_rate``
+    """Run ``system`` (a System or a Prepared one) with ``solve_ivp(method=...)`` and sample it at ``output_rate``
     (Hz; default 1 kHz), never stepping further than one sample interval.
     Returns a :class:`~lumped.simulate.RunResult`."""
-    from lumped.simulate import Event, RunError, _Engine, prepare
+    from lumped.simulate import Event, Prepared, RunError, _Engine, prepare
 
-    prepared = prepare(system)
+    prepared = system if isinstance(system, Prepared) else prepare(system)
     matrices = prepared.matrices
     rate = output_rate or 1000.0
     samples = int(round(duration * rate))

@@ -594,7 +594,7 @@ def implicit_chunk(
     model, work,
     out_every, out_q, out_v, out_a, out_e, out_step, n_out,
     watch_element, watch_kind, watch_prev, ev_step, ev_frac, ev_watch, ev_value, n_ev,
-    q_limit, max_iterations,
+    q_limit, max_iterations, accel_scale,
 ):  # fmt: skip
     """Implicit one-step methods on the second-order form, for nonlinear systems:
 
@@ -609,7 +609,10 @@ def implicit_chunk(
     state there (so a support jump between chunks is seen). Energy rates by the
     trapezoid rule. Returns (status, steps done,
     samples written, events written); status :data:`NEWTON_FAILED` when a step does
-    not settle within ``max_iterations`` evaluations. A correction that does not
+    not settle within ``max_iterations`` evaluations. A step has settled when the
+    residual is within 10⁻¹² of the accelerations plus the rounding floor of the force
+    sums, 64 ε × ``accel_scale`` (m/s²: the largest static force on a body over its
+    mass, or g), which also sets the finite-difference probe. A correction that does not
     lower the residual is halved (backtracking), so that the iteration cannot cycle
     between contact states at a kink.
     """
@@ -623,6 +626,7 @@ def implicit_chunk(
     _accelerations(q, v, U, Ud, Udd, FF, 0, model, a, old)
     bq = beta * h * h
     gv = gamma * h
+    floor = 64 * 2.220446049250313e-16 * accel_scale  # rounding of the force sums, m/s²
     for j in range(nsteps):
         _step_inputs(program, clock, k0 + j, h, U, Ud, Udd, FF)
         for r in range(n):
@@ -643,7 +647,7 @@ def implicit_chunk(
             for r in range(n):
                 size = max(size, abs(acc[r]), abs(a1[r]))
                 worst = max(worst, abs(acc[r] - a1[r]))
-            if rounding or worst <= 1e-12 * size + 1e-300:
+            if rounding or worst <= 1e-12 * size + floor:
                 settled = True
                 break
             if worst >= previous and fraction > 1e-3:
@@ -658,7 +662,7 @@ def implicit_chunk(
                 base[r] = a1[r]
                 step_change[r] = acc[r] - a1[r]  # −R
             for c in range(n):
-                delta = 1e-7 * (abs(a1[c]) + 1e-3 * size + 1e-300)
+                delta = 1e-7 * (abs(a1[c]) + 1e-3 * size + accel_scale)
                 q1[c] += bq * delta
                 v1[c] += gv * delta
                 _accelerations(q1, v1, U, Ud, Udd, FF, 1, model, probe, spare)
@@ -671,7 +675,7 @@ def implicit_chunk(
             for r in range(n):
                 a1[r] = base[r] + step_change[r]
                 correction = max(correction, abs(step_change[r]))
-            rounding = correction <= 1e-14 * size
+            rounding = correction <= 1e-14 * size + floor
         if not settled:
             restore_float_mode(mode)
             return NEWTON_FAILED, j, m, ne

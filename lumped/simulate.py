@@ -455,7 +455,8 @@ def simulate(
     if isinstance(stepper, str) and stepper in ADAPTIVE_METHODS:
         from lumped.adaptive import simulate_adaptive
 
-        return simulate_adaptive(system, ADAPTIVE_METHODS[stepper], stepper, duration, output_rate or (1 / dt if dt else None))
+        return simulate_adaptive(prepared or system, ADAPTIVE_METHODS[stepper], stepper, duration,
+                                 output_rate or (1 / dt if dt else None))  # fmt: skip
     if isinstance(stepper, str):
         try:
             stepper = get_stepper(stepper)
@@ -573,7 +574,7 @@ class _Engine:
             if interior and jump_step <= k:
                 t_jump, s, size = interior.pop(0)
                 result = self._split_step(k, t_jump, s, size)
-                k += 1
+                k += 1 if result[0] == kernels.OK else 0
             else:
                 result = self._advance(k, end - k)
                 k = end if result[0] == kernels.OK else k + result[1]
@@ -696,12 +697,20 @@ class _Engine:
                 f"limited to {NEWTON_LIMIT} bodies; this system has {self.m.n}; use an explicit stepper (rk4)"
             )
         work = kernels.implicit_work(self.m.n, self.inputs.program, self.offsets, len(self.watch_element))
+        # Acceleration scale of the force sums (m/s²): the largest static load on a
+        # body over its mass, or gravity; it sets Newton's rounding floor.
+        table, n = self.table, self.m.n
+        load = np.zeros(n)
+        for ends in (table.ea, table.eb):
+            on_body = ends < n
+            np.add.at(load, ends[on_body], np.abs(table.fs[on_body]))
+        scale = max(float(np.max(load / self.m.mass)), abs(self.m.gravity), 1e-6)
 
         def kernel(start, n, h, clock):
             status, done, self.count, self.n_ev = kernels.implicit_chunk(
                 coefficients, self.q, self.v, self.energy, h, start, n, self.inputs.program, clock,
                 self.model, work, *self._output_buffers(), *self._event_buffers(), self.q_limit,
-                NEWTON_ITERATIONS,
+                NEWTON_ITERATIONS, scale,
             )  # fmt: skip
             return status, done
 
@@ -911,9 +920,9 @@ class _Engine:
             element_kinds=self.m.element_kinds,
             support_ids=self.m.support_ids,
             force_ids=self.m.force_ids,
-            displacement=q,  # views of the run's own buffers (the engine ends here)
-            velocity=v,
-            acceleration=a,
+            displacement=_trimmed(q, self.out_q),
+            velocity=_trimmed(v, self.out_v),
+            acceleration=_trimmed(a, self.out_a),
             deflection=deflection,
             force=force,
             support_displacement=u,
@@ -947,6 +956,12 @@ class _Engine:
         if self.n_ev > self.ev_capacity:
             out.append(Event(math.nan, "", f"{self.n_ev - self.ev_capacity} more events not kept"))
         return sorted(out, key=lambda e: (e.time, e.element))
+
+
+def _trimmed(samples: np.ndarray, buffer: np.ndarray) -> np.ndarray:
+    """The samples kept: a view of the run's buffer when it is (nearly) full, else a
+    copy, so that a run stopped early does not hold its whole buffer."""
+    return samples if 2 * len(samples) >= len(buffer) else samples.copy()
 
 
 def _nonlinear_indices(m: Matrices) -> list[int]:
