@@ -21,19 +21,6 @@ import os as _os
 for _name in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
     _os.environ.setdefault(_name, "1")
 
-# numpy asks the kernel for transparent huge pages on every large array; where the
-# kernel cannot give them (as on the machines this was measured on: THP "madvise",
-# none obtained), each first touch of a fresh array runs into page compaction — a
-# 100 000-body chain's post-processing wrote its 131 MB of fresh element arrays in
-# 0.42 s with the advice and 0.12 s without. Set NUMPY_MADVISE_HUGEPAGE=1 to keep it.
-if _os.environ.setdefault("NUMPY_MADVISE_HUGEPAGE", "0") == "0":
-    import numpy as _np
-
-    _core = getattr(_np, "_core", None) or _np.core
-    _advise = getattr(_core.multiarray, "_set_madvise_hugepage", None)
-    if _advise is not None:  # numpy was imported first and read the variable already
-        _advise(False)
-
 from lumped.assemble import Matrices, NonlinearElements, StateSpace, assemble, state_space
 from lumped.demos import DEMO_DIR, demo_path, demo_systems
 from lumped.errors import LumpedError, ModelError, Problem

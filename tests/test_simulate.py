@@ -1251,3 +1251,21 @@ def test_newton_settles_near_rest_under_large_static_loads(stepper):
     tolerance = {"newmark": 1e-4, "trapezoid": 1e-4, "backward-euler": 2e-2}[stepper]
     scale = np.max(np.abs(reference.displacement))
     np.testing.assert_allclose(run.displacement, reference.displacement, rtol=0, atol=tolerance * scale)
+
+
+def test_a_run_leaves_numpys_page_advice_as_it_found_it():
+    # lumped switches numpy's huge-page advice off only while it runs (see
+    # lumped.simulate._plain_pages); the caller's setting is back afterwards.
+    core = getattr(np, "_core", None) or np.core
+    advise = getattr(core.multiarray, "_set_madvise_hugepage", None)
+    if advise is None:
+        pytest.skip("this numpy has no huge-page advice to keep")
+    before = advise(True)
+    try:
+        simulate(oscillator(1.0, 100.0, 0.1, x0=0.01), "rk4", 1e-3, 0.05, check=False)
+        assert advise(True) is True
+        advise(False)
+        simulate(oscillator(1.0, 100.0, 0.1, x0=0.01), "rk4", 1e-3, 0.05, check=False)
+        assert advise(before) is False
+    finally:
+        advise(before)
