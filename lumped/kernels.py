@@ -6,7 +6,7 @@ state and the inputs at one instant; the explicit Runge–Kutta kernel (any tabl
 the symplectic Euler kernel and the output post-processing all call it, so the
 physics lives in one place. Linear systems under implicit or exact steppers go
 through :func:`affine_chunk`, one dense affine map per step; nonlinear systems under
-Newmark, trapezoid or backward Euler through :func:`implicit_chunk`, Newton's method
+Newmark, trapezoid, backward Euler or central difference through :func:`implicit_chunk`, Newton's method
 on the same element loop.
 
 Layout. Nodes are numbered bodies first (0 … n−1), then supports (n …). Element e
@@ -500,13 +500,12 @@ def symplectic_chunk(
 @njit(**HOT)
 def affine_chunk(
     G, H0, H1, z, energy, h, k0, nsteps, program, clock,
-    Qmap, Vmap, VWmap, model, work,
+    model, work,
     out_every, out_q, out_v, out_a, out_e, out_step, n_out, q_limit,
 ):  # fmt: skip
     """Linear steppers as one affine map per step, z₁ = G z + H0 w₀ + H1 w₁, where
     w₀ = [u, u', u'', F] are the inputs at the step's start (input row 0) and w₁ at
-    its end (row 1, left limits). Body displacement q = Qmap z and velocity
-    v = Vmap z + VWmap w; the acceleration and energy rates come from
+    its end (row 1, left limits); z = (q, v). The acceleration and energy rates come from
     :func:`body_accelerations`, the rates integrated by the trapezoid rule (second
     order, as these steppers)."""
     nz = z.shape[0]
@@ -514,7 +513,7 @@ def affine_chunk(
     mode = flush_subnormals()
     _step_inputs(program, clock, k0, h, U, Ud, Udd, FF)
     _input_vector(U, Ud, Udd, FF, 0, w0)
-    _affine_body_state(z, w0, Qmap, Vmap, VWmap, q, v)
+    _halves(z, q, v)
     body_accelerations(q, v, U, Ud, Udd, FF, 0, model, acc, old)
     m = n_out
     for j in range(nsteps):
@@ -530,7 +529,7 @@ def affine_chunk(
             znew[r] = s
         for r in range(nz):
             z[r] = znew[r]
-        _affine_body_state(z, w1, Qmap, Vmap, VWmap, q, v)
+        _halves(z, q, v)
         body_accelerations(q, v, U, Ud, Udd, FF, 1, model, acc, rates)
         _trapezoid_energy(energy, old, rates, h)
         step = k0 + j + 1
@@ -556,17 +555,12 @@ def _input_vector(U, Ud, Udd, FF, row, w):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _affine_body_state(z, w, Qmap, Vmap, VWmap, q, v):
-    for r in range(Qmap.shape[0]):
-        sq = 0.0
-        sv = 0.0
-        for other in range(z.shape[0]):
-            sq += Qmap[r, other] * z[other]
-            sv += Vmap[r, other] * z[other]
-        for other in range(w.shape[0]):
-            sv += VWmap[r, other] * w[other]
-        q[r] = sq
-        v[r] = sv
+def _halves(z, q, v):
+    """q, v ← the two halves of z = (q, v)."""
+    n = q.shape[0]
+    for r in range(n):
+        q[r] = z[r]
+        v[r] = z[n + r]
 
 
 # Status of :func:`implicit_chunk` when Newton's method does not settle in a step.

@@ -6,7 +6,7 @@ analysis pin down), written once on M, C, K and the input coupling. Small system
 apply it to the columns of an identity to get the dense affine map
 z₁ = G z + H0 w₀ + H1 w₁ that the compiled :func:`lumped.kernels.affine_chunk`
 steps (:func:`affine_maps`); larger ones apply it to the state itself, step by
-step, with sparse factorisations (:func:`sparse_updates`).
+step, with sparse factorisations (:func:`sparse_update`).
 """
 
 from __future__ import annotations
@@ -17,9 +17,9 @@ import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
 from lumped.assemble import Matrices, state_space
-from lumped.steppers import ExactStepper, SecondOrderStepper, Stepper, implicit_coefficients
+from lumped.steppers import ExactStepper, Stepper, implicit_coefficients
 
-__all__ = ["affine_maps", "sparse_updates", "DENSE_MAP_LIMIT"]
+__all__ = ["affine_maps", "sparse_update", "DENSE_MAP_LIMIT"]
 
 #: Bodies up to which the implicit steppers run a dense one-step map (above: sparse
 #: factorisations applied step by step; a dense map costs (2n)² per step and n³ to make).
@@ -27,31 +27,18 @@ DENSE_MAP_LIMIT = 200
 
 
 def affine_maps(matrices: Matrices, stepper: Stepper, h: float):
-    """``(G, H0, H1, Qmap, Vmap, VWmap, to_state)`` of ``stepper`` at step ``h`` (s).
-
-    ``to_state(q, v, w)`` turns body displacements and velocities (and the inputs at
-    that instant) into the stepper's state z; q = Qmap z, v = Vmap z + VWmap w.
-    """
+    """``(G, H0, H1)`` of ``stepper`` at step ``h`` (s), on the state z = (q, v)."""
     n = matrices.n
     if isinstance(stepper, ExactStepper):
         ss = state_space(matrices, dense=True)
-        G, H0, H1 = _first_order_hold(ss.A, ss.B, h)
-        return (G, H0, H1, np.hstack([np.eye(n), np.zeros((n, n))]), np.hstack([np.zeros((n, n)), np.eye(n)]),
-                np.zeros((n, ss.B.shape[1])), lambda q, v, w: np.concatenate([q, v]))  # fmt: skip
-    step, to_state, velocity = _updates(matrices, stepper, h, _dense_solver, dense=True)
-    nw = _coupling(matrices).shape[1]
-    G, H0, H1 = _columns(step, 2 * n, nw)
-    # v is linear in (z, w): read its map off the same function.
-    Vmap = velocity(np.eye(2 * n), np.zeros((nw, 2 * n)))
-    VWmap = velocity(np.zeros((2 * n, nw)), np.eye(nw))
-    return G, H0, H1, np.hstack([np.eye(n), np.zeros((n, n))]), Vmap, VWmap, to_state
+        return _first_order_hold(ss.A, ss.B, h)
+    return _columns(_update(matrices, stepper, h, _dense_solver, dense=True), 2 * n, _coupling(matrices).shape[1])
 
 
-def sparse_updates(matrices: Matrices, stepper: Stepper, h: float):
-    """``(step, to_state, velocity)`` of ``stepper`` at step ``h`` with sparse
-    factorisations: ``step(z, w0, w1)`` → z₁, ``to_state(q, v, w)`` → z,
-    ``velocity(z, w)`` → body velocities; q is the first half of z."""
-    return _updates(matrices, stepper, h, _sparse_solver, dense=False)
+def sparse_update(matrices: Matrices, stepper: Stepper, h: float):
+    """``step(z, w0, w1)`` → z₁ of ``stepper`` at step ``h``, z = (q, v), with sparse
+    factorisations."""
+    return _update(matrices, stepper, h, _sparse_solver, dense=False)
 
 
 def _coupling(matrices: Matrices):
@@ -69,27 +56,16 @@ def _sparse_solver(matrix):
     return factors.solve
 
 
-def _updates(matrices: Matrices, stepper: Stepper, h: float, solver, dense: bool):
-    """The stepper's update, to_state and velocity functions on (z, w), with linear
-    solves made by ``solver(matrix)``; z and w may be vectors or matrices of columns."""
+def _update(matrices: Matrices, stepper: Stepper, h: float, solver, dense: bool):
+    """The stepper's update on (z, w), with linear solves made by ``solver(matrix)``;
+    z and w may be vectors or matrices of columns."""
     M, C, K, coupling = matrices.M, matrices.C, matrices.K, _coupling(matrices)
     if dense:
         M, C, K, coupling = M.toarray(), C.toarray(), K.toarray(), coupling.toarray()
-    n = matrices.n
-
-    def as_state(q, v, w):
-        return np.concatenate([q, v])
-
-    def own_velocity(z, w):
-        return z[n:]
-
     coefficients = implicit_coefficients(stepper)
-    if coefficients is not None:
-        step = _second_order_implicit(M, C, K, coupling, h, coefficients, solver)
-        return step, as_state, own_velocity
-    if isinstance(stepper, SecondOrderStepper) and stepper.scheme == "central-difference":
-        return _central_difference(M, C, K, coupling, h, solver)
-    raise ValueError(f"no update on the matrices for stepper {stepper.id!r}")
+    if coefficients is None:
+        raise ValueError(f"no update on the matrices for stepper {stepper.id!r}")
+    return _second_order_implicit(M, C, K, coupling, h, coefficients, solver)
 
 
 def _columns(step, nz: int, nw: int):
@@ -115,9 +91,10 @@ def _first_order_hold(A, B, h):
 
 def _second_order_implicit(M, C, K, coupling, h, coefficients, solver):
     """q₁ = q + h v + h²(α_q a + β a₁), v₁ = v + h(α_v a + γ a₁), with a₁ from the
-    equation of motion at the new state (Newmark; the trapezoid and backward Euler
-    written on the second-order form, see :func:`lumped.steppers.implicit_coefficients`),
-    on z = (q, v) and loads f = coupling·w."""
+    equation of motion at the new state (Newmark, central difference as Newmark with
+    β = 0, and the trapezoid and backward Euler written on the second-order form, see
+    :func:`lumped.steppers.implicit_coefficients`), on z = (q, v) and loads
+    f = coupling·w."""
     n = M.shape[0]
     aq, beta, av, gamma = coefficients
     effective = solver(M + gamma * h * C + beta * h * h * K)
@@ -132,28 +109,3 @@ def _second_order_implicit(M, C, K, coupling, h, coefficients, solver):
         return np.concatenate([predictor_x + beta * h * h * a1, predictor_v + gamma * h * a1])
 
     return step
-
-
-def _central_difference(M, C, K, coupling, h, solver):
-    """Central difference on z = (x_n, v_{n−1/2}): (M/h + C/2) v_{n+1/2} =
-    (M/h − C/2) v_{n−1/2} + f_n − K x_n, x_{n+1} = x_n + h v_{n+1/2}; the velocity at
-    t_n is v_n = (M/h + C/2)⁻¹ (M v_{n−1/2}/h − K x_n/2 + f_n/2)."""
-    n = M.shape[0]
-    centred = solver(M / h + C / 2)
-    behind = M / h - C / 2
-    mass = solver(M)
-
-    def step(z, w0, w1):
-        x, v_half = z[:n], z[n:]
-        v_next = centred(behind @ v_half + coupling @ w0 - K @ x)
-        return np.concatenate([x + h * v_next, v_next])
-
-    def velocity(z, w):
-        x, v_half = z[:n], z[n:]
-        return centred(M @ v_half / h - 0.5 * (K @ x) + 0.5 * (coupling @ w))
-
-    def to_state(q, v, w):
-        acceleration = mass(coupling @ w - K @ q - C @ v)
-        return np.concatenate([q, v - 0.5 * h * acceleration])
-
-    return step, to_state, velocity

@@ -30,7 +30,7 @@ from lumped.assemble import DENSE_LIMIT, Matrices, assemble, mass_solver
 from lumped.errors import LumpedError
 from lumped.excitation import Signal, signal_for
 from lumped.kernels import LEFT_LIMIT
-from lumped.linear_steppers import DENSE_MAP_LIMIT, affine_maps, sparse_updates
+from lumped.linear_steppers import DENSE_MAP_LIMIT, affine_maps, sparse_update
 from lumped.model import System
 from lumped.stability import StepCheck, check_step, step_count
 from lumped.static import StaticState, static_equilibrium
@@ -711,7 +711,7 @@ class _Engine:
         self._kernel = kernel
 
     def _implicit_kernel(self, coefficients):
-        """Newmark, trapezoid and backward Euler on a nonlinear system: Newton's method
+        """Newmark, trapezoid, backward Euler or central difference on a nonlinear system: Newton's method
         in every step (:func:`lumped.kernels.implicit_chunk`), dense up to
         :data:`NEWTON_LIMIT` bodies."""
         if self.m.n > NEWTON_LIMIT:
@@ -751,7 +751,7 @@ class _Engine:
             names = ", ".join(self.m.element_ids[i] for i in _nonlinear_indices(self.m))
             raise RunError(
                 f"{self.stepper.id} runs linear systems only; this system has nonlinear "
-                f"elements ({names}); use newmark, trapezoid or backward-euler (Newton in every step), "
+                f"elements ({names}); use newmark, trapezoid, backward-euler or central-difference (Newton in every step), "
                 "an explicit Runge–Kutta stepper (rk4, rk38, rk3, heun, euler) or symplectic-euler"
             )
         exact = isinstance(self.stepper, ExactStepper)
@@ -764,20 +764,17 @@ class _Engine:
             return self._sparse_kernel()
         cache: dict[float, tuple] = {}
         work = kernels.affine_work(2 * self.m.n, self.m.n, self.inputs.program, self.offsets)
-        inputs = self._input_vector
 
         def kernel(start, n, h, clock):
             if h not in cache:
                 cache[h] = affine_maps(self.m, self.stepper, h)
-            G, H0, H1, Qmap, Vmap, VWmap, to_state = cache[h]
-            base, grid, _ = clock
-            z = to_state(self.q, self.v, inputs(base + start * grid))
+            G, H0, H1 = cache[h]
+            z = np.concatenate([self.q, self.v])
             status, done, self.count, _ = kernels.affine_chunk(
-                G, H0, H1, z, self.energy, h, start, n, self.inputs.program, clock, Qmap, Vmap, VWmap,
+                G, H0, H1, z, self.energy, h, start, n, self.inputs.program, clock,
                 self.model, work, *self._output_buffers(), self.q_limit,
             )  # fmt: skip
-            self.q = Qmap @ z
-            self.v = Vmap @ z + VWmap @ inputs(base + (start + max(done, 1) - 1) * grid + h, LEFT_LIMIT * h)
+            self.q, self.v = z[: self.m.n].copy(), z[self.m.n :].copy()
             return status, done
 
         return kernel
@@ -797,17 +794,17 @@ class _Engine:
 
         def kernel(start, n, h, clock):
             if h not in cache:
-                cache[h] = sparse_updates(self.m, self.stepper, h)
-            step, to_state, velocity = cache[h]
+                cache[h] = sparse_update(self.m, self.stepper, h)
+            step = cache[h]
             base, grid, _ = clock
             w0 = self._input_vector(base + start * grid)
-            z = to_state(self.q, self.v, w0)
+            z = np.concatenate([self.q, self.v])
             self._accelerations(self.q, self.v, *self.inputs.at(np.array(base + start * grid)), acc, old)
             for j in range(n):
                 t0 = base + (start + j) * grid
                 w1 = self._input_vector(t0 + h, LEFT_LIMIT * h)
                 z = step(z, w0, w1)
-                self.q, self.v = z[:n_bodies], velocity(z, w1)
+                self.q, self.v = z[:n_bodies], z[n_bodies:]
                 self._accelerations(self.q, self.v, *self.inputs.at(np.array(t0 + h), LEFT_LIMIT * h), acc, rates)
                 self.energy += 0.5 * h * (old + rates)
                 old[:] = rates

@@ -326,7 +326,7 @@ def check_step(
     if matrices.nonlinear.count and not runs_nonlinear(stepper):
         notes.append(
             f"{stepper.id} runs linear systems only, and this system has nonlinear "
-            "elements: a run with it is refused (use newmark, trapezoid or backward-euler, "
+            "elements: a run with it is refused (use newmark, trapezoid, backward-euler, central-difference, "
             "an explicit Runge–Kutta stepper or symplectic-euler)"
         )
     run_growth = float(np.max(growth)) if len(growth) else 1.0
@@ -442,9 +442,9 @@ def _accurate(stepper: Stepper, eig: np.ndarray, h: float) -> bool:
 
 def runs_nonlinear(stepper: Stepper) -> bool:
     """True for the steppers the engine runs on systems with nonlinear elements: the
-    explicit Runge–Kutta family, symplectic Euler, and the implicit steppers written
-    on the second-order form (Newmark, trapezoid, backward Euler: Newton's method in
-    every step)."""
+    explicit Runge–Kutta family, symplectic Euler, and the steppers written on the
+    second-order form (Newmark, trapezoid, backward Euler, central difference:
+    Newton's method in every step)."""
     return (
         (isinstance(stepper, RungeKuttaStepper) and stepper.explicit)
         or getattr(stepper, "scheme", "") == "symplectic-euler"

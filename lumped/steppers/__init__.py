@@ -182,7 +182,8 @@ def implicit_coefficients(stepper: Stepper) -> tuple[float, float, float, float]
     """``(α_q, β, α_v, γ)`` of an implicit stepper written on the second-order form,
     q₁ = q + h v + h²(α_q a + β a₁), v₁ = v + h(α_v a + γ a₁), or None.
 
-    Newmark gives (½ − β, β, 1 − γ, γ). A Runge–Kutta tableau qualifies when each
+    Newmark gives (½ − β, β, 1 − γ, γ), and central difference is Newmark with β = 0,
+    γ = ½ (the velocity centred): (½, 0, ½, ½). A Runge–Kutta tableau qualifies when each
     stage either sits at the step's start (c = 0, nothing implicit) or is the step's
     end (c = 1, its row of a equal to b): then v₁ = v + h Σ bᵢ aᵢ and
     q₁ = q + h v + h² Σⱼ (bA)ⱼ aⱼ, summed over the two kinds of stage — the trapezoid
@@ -190,6 +191,8 @@ def implicit_coefficients(stepper: Stepper) -> tuple[float, float, float, float]
     """
     if isinstance(stepper, SecondOrderStepper) and stepper.scheme == "newmark":
         return 0.5 - stepper.beta, stepper.beta, 1.0 - stepper.gamma, stepper.gamma
+    if isinstance(stepper, SecondOrderStepper) and stepper.scheme == "central-difference":
+        return 0.5, 0.0, 0.5, 0.5
     if not isinstance(stepper, RungeKuttaStepper) or stepper.explicit:
         return None
     t = stepper.tableau
