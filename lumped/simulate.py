@@ -276,8 +276,7 @@ class _Inputs:
     program (:mod:`lumped.signal_kernels`) the kernels evaluate them with."""
 
     supports: list[tuple[Signal | None, float]]  # (signal, delay) per support
-    forces: list[Signal]
-    scales: np.ndarray
+    scales: np.ndarray  # per force item
     program: tuple
 
     def at(self, t: np.ndarray, before=0.0):
@@ -290,7 +289,7 @@ class _Inputs:
         """
         t = np.asarray(t, dtype=float) - before
         flat = np.ascontiguousarray(t.ravel())
-        ns, nf = len(self.supports), len(self.forces)
+        ns, nf = len(self.supports), len(self.scales)
         u, ud, udd = (np.zeros((len(flat), ns)) for _ in range(3))
         F = np.zeros((len(flat), nf))
         signal_kernels.input_series(flat, self.program, u, ud, udd, F)
@@ -318,7 +317,6 @@ def _inputs(system: System, matrices: Matrices) -> _Inputs:
     for s in matrices.support_ids:
         support = system.supports[s]
         supports.append((signals[support.motion] if support.motion else None, support.delay))
-    forces = [signals[system.forces[f].input] for f in matrices.force_ids]
     used = list(system.inputs)
     program = (
         *signal_kernels.encoded([signals[key].code() for key in used]),
@@ -327,7 +325,7 @@ def _inputs(system: System, matrices: Matrices) -> _Inputs:
         np.array([delay for _, delay in supports], dtype=float),
         np.array([used.index(system.forces[f].input) for f in matrices.force_ids], dtype=np.int64),
     )  # fmt: skip
-    return _Inputs(supports, forces, np.array([system.forces[f].scale for f in matrices.force_ids]), program)
+    return _Inputs(supports, np.array([system.forces[f].scale for f in matrices.force_ids]), program)
 
 
 def _inverse_mass(matrices: Matrices) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -522,7 +520,6 @@ class _Engine:
         self.every = output_every
         self.table = prepared.table
         self.inputs = prepared.inputs
-        self.fscale = prepared.model[-1]
         self.model = (*prepared.model, np.zeros(matrices.n))  # work space of its own
         n = matrices.n
         self.q = np.array([system.bodies[b].initial_displacement for b in matrices.body_ids], dtype=float)
@@ -779,10 +776,6 @@ class _Engine:
 
         return kernel
 
-    def _input_vector(self, time: float, before: float = 0.0) -> np.ndarray:
-        """w = [u, u', u'', F] at ``time`` (read ``before`` seconds early)."""
-        return np.concatenate(self.inputs.at(np.array(time), before))
-
     def _sparse_kernel(self):
         """An implicit stepper on a linear system above DENSE_MAP_LIMIT bodies: its
         update applied step by step with sparse factorisations (made once per step
@@ -792,20 +785,25 @@ class _Engine:
         acc, rates, old = np.zeros(self.m.n), np.zeros(3), np.zeros(3)
         n_bodies = self.m.n
 
+        def inputs_at(time, before=0.0):
+            """(u, u', u'', F) at ``time`` and the same as one vector w."""
+            parts = self.inputs.at(np.array(time), before)
+            return parts, np.concatenate(parts)
+
         def kernel(start, n, h, clock):
             if h not in cache:
                 cache[h] = sparse_update(self.m, self.stepper, h)
             step = cache[h]
             base, grid, _ = clock
-            w0 = self._input_vector(base + start * grid)
+            parts, w0 = inputs_at(base + start * grid)
             z = np.concatenate([self.q, self.v])
-            self._accelerations(self.q, self.v, *self.inputs.at(np.array(base + start * grid)), acc, old)
+            self._accelerations(self.q, self.v, *parts, acc, old)
             for j in range(n):
                 t0 = base + (start + j) * grid
-                w1 = self._input_vector(t0 + h, LEFT_LIMIT * h)
+                parts, w1 = inputs_at(t0 + h, LEFT_LIMIT * h)
                 z = step(z, w0, w1)
                 self.q, self.v = z[:n_bodies], z[n_bodies:]
-                self._accelerations(self.q, self.v, *self.inputs.at(np.array(t0 + h), LEFT_LIMIT * h), acc, rates)
+                self._accelerations(self.q, self.v, *parts, acc, rates)
                 self.energy += 0.5 * h * (old + rates)
                 old[:] = rates
                 if not (np.max(np.abs(self.q)) <= self.q_limit):
@@ -815,7 +813,7 @@ class _Engine:
                     self.out_q[i], self.out_v[i], self.out_a[i], self.out_e[i] = self.q, self.v, acc, self.energy
                     self.out_step[i] = start + j + 1
                     self.count += 1
-                w0 = self._input_vector(t0 + h)
+                w0 = inputs_at(t0 + h)[1]
             return kernels.OK, n
 
         return kernel
@@ -947,7 +945,7 @@ class _Engine:
             force=force,
             support_displacement=u,
             support_velocity=ud,
-            force_input=F * self.fscale if len(self.fscale) else F,
+            force_input=F * self.inputs.scales,
             kinetic=kinetic,
             stored=stored,
             dissipated=self.out_e[:count, 0].copy(),

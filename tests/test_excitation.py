@@ -48,6 +48,13 @@ def central_difference(f, t, delta):
     return (f(t + delta) - f(t - delta)) / (2 * delta)
 
 
+def assert_rates_are_derivatives(signal, t, rate_tolerance, rate2_tolerance, delta=1e-7):
+    """A signal's rate and second rate against central differences (step ``delta``,
+    s) of its value and rate, within absolute tolerances."""
+    np.testing.assert_allclose(signal.rate(t), central_difference(signal.value, t, delta), rtol=0, atol=rate_tolerance)
+    np.testing.assert_allclose(signal.rate2(t), central_difference(signal.rate, t, delta), rtol=0, atol=rate2_tolerance)
+
+
 # --------------------------------------------------------------------------- ISO 8608 road
 
 
@@ -167,18 +174,7 @@ def test_bump_shape_and_rates():
     away = np.abs(t - start) > 2 * delta
     away &= np.abs(t - end) > 2 * delta
     w = 2 * math.pi * speed / length
-    np.testing.assert_allclose(
-        bump.rate(t[away]),
-        central_difference(bump.value, t[away], delta),
-        rtol=0,
-        atol=1e-6 * height * w,
-    )
-    np.testing.assert_allclose(
-        bump.rate2(t[away]),
-        central_difference(bump.rate, t[away], delta),
-        rtol=0,
-        atol=1e-6 * height * w * w,
-    )
+    assert_rates_are_derivatives(bump, t[away], 1e-6 * height * w, 1e-6 * height * w * w, delta)
 
 
 @pytest.mark.parametrize("phase", [0.0, 0.7])
@@ -193,21 +189,8 @@ def test_harmonic_shape_rates_and_start_jump(phase):
         atol=1e-17,
     )
     assert harmonic.value(-0.1) == 0.0  # zero before its time zero
-    inner = t[1:-1]
-    delta = 1e-7
     w = 2 * math.pi * frequency
-    np.testing.assert_allclose(
-        harmonic.rate(inner),
-        central_difference(harmonic.value, inner, delta),
-        rtol=0,
-        atol=1e-7 * amplitude * w,
-    )
-    np.testing.assert_allclose(
-        harmonic.rate2(inner),
-        central_difference(harmonic.rate, inner, delta),
-        rtol=0,
-        atol=1e-7 * amplitude * w * w,
-    )
+    assert_rates_are_derivatives(harmonic, t[1:-1], 1e-7 * amplitude * w, 1e-7 * amplitude * w * w)
     # A sine that does not start at zero starts with a jump of A sin φ at t = 0.
     if phase:
         ((time, size),) = harmonic.jumps()
@@ -239,21 +222,8 @@ def test_sweep_shape_and_rates(spacing):
         rtol=0,
         atol=1e-10 * amplitude * f1,
     )
-    inner = t[1:-1]
-    delta = 1e-7
     w1 = 2 * math.pi * f1
-    np.testing.assert_allclose(
-        sweep.rate(inner),
-        central_difference(sweep.value, inner, delta),
-        rtol=0,
-        atol=1e-6 * amplitude * w1,
-    )
-    np.testing.assert_allclose(
-        sweep.rate2(inner),
-        central_difference(sweep.rate, inner, delta),
-        rtol=0,
-        atol=1e-6 * amplitude * w1**2,
-    )
+    assert_rates_are_derivatives(sweep, t[1:-1], 1e-6 * amplitude * w1, 1e-6 * amplitude * w1**2)
     # Zero after the sweep; if it ends off zero, that is a jump back to zero at T.
     assert sweep.value(duration + 0.01) == 0.0
     if spacing == "linear":
