@@ -28,7 +28,7 @@ from lumped.signal_kernels import HOT, input_values
 __all__ = [
     "SPRING", "DAMPER", "ASYMMETRIC_DAMPER", "CURVE_DAMPER", "INERTER",
     "body_accelerations", "element_state", "rk_chunk", "symplectic_chunk", "affine_chunk",
-    "implicit_chunk",
+    "implicit_chunk", "stage_time",
 ]  # fmt: skip
 
 SPRING, DAMPER, ASYMMETRIC_DAMPER, CURVE_DAMPER, INERTER = 0, 1, 2, 3, 4
@@ -313,8 +313,8 @@ def affine_work(nz: int, n: int, program, offsets) -> tuple:
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _step_inputs(program, clock, k, h, U, Ud, Udd, FF):
-    """The inputs of global step k at each stage time into rows of U … FF.
+def stage_time(clock, k, h, c):
+    """Time (s) at which global step k reads its input row c.
 
     ``clock = (base, grid step, offsets)``: the step starts at base + k·(grid step)
     (base 0 on the run's grid; for one part of a split step, its start with grid step
@@ -323,12 +323,18 @@ def _step_inputs(program, clock, k, h, U, Ud, Udd, FF):
     step sees the value and rates from before it.
     """
     base, grid, offsets = clock
-    start = base + k * grid
-    for c in range(offsets.shape[0]):
-        t = start + offsets[c] * h
-        if offsets[c] > 0.0:
-            t -= LEFT_LIMIT * h
-        input_values(t, program, c, U, Ud, Udd, FF)
+    t = base + k * grid + offsets[c] * h
+    if offsets[c] > 0.0:
+        t -= LEFT_LIMIT * h
+    return t
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _step_inputs(program, clock, k, h, U, Ud, Udd, FF):
+    """The inputs of global step k at each stage time (:func:`stage_time`) into rows
+    of U … FF."""
+    for c in range(clock[2].shape[0]):
+        input_values(stage_time(clock, k, h, c), program, c, U, Ud, Udd, FF)
 
 
 @njit(**HOT)

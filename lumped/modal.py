@@ -246,6 +246,13 @@ def modal_analysis(matrices: Matrices, shapes: bool = True):
         scale = max(np.max(np.abs(values)), 1e-300)
         real = np.abs(values.imag) <= REAL_TOLERANCE * np.maximum(np.abs(values), RIGID_TOLERANCE * scale)
         keep = real | (values.imag > 0)
+        # A rigid-body mode is a double (defective) eigenvalue 0 of the state matrix,
+        # which rounding splits into a tiny complex pair or two tiny real values: one
+        # mode either way, so keep half of the rigid eigenvalues.
+        rigid = np.flatnonzero(np.abs(values) <= RIGID_TOLERANCE * scale)
+        keep[rigid] = False
+        keep[rigid[: len(rigid) // 2]] = True
+        values = np.where(np.isin(np.arange(len(values)), rigid), 0j, values)
         eig = np.where(real, values.real + 0j, values)[keep]
         vectors = right[: matrices.n, keep] if right is not None else None
         index = _match_undamped(vectors, phi, matrices) if vectors is not None else np.zeros(len(eig), int)

@@ -23,7 +23,8 @@ from numba import njit
 
 __all__ = [
     "FIXED", "STEP", "BUMP", "HARMONIC", "SWEEP", "TABLE", "ROAD", "PARAMETERS",
-    "signal_motion", "signal_series", "input_values", "input_series", "sweep_phase",
+    "signal_motion", "signal_series", "support_motion", "force_value", "input_values", "input_series",
+    "sweep_phase",
 ]  # fmt: skip
 
 FIXED, STEP, BUMP, HARMONIC, SWEEP, TABLE, ROAD = range(7)
@@ -154,22 +155,32 @@ def signal_series(kind, p, data, t, value, rate, rate2):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
+def support_motion(t, program, s):
+    """Displacement, velocity and acceleration of support s at t (s): its signal,
+    delayed by the support's delay; zero for a fixed support."""
+    kind, p, lo, hi, data, support_signal, support_delay, _ = program
+    g = support_signal[s]
+    if g < 0:
+        return 0.0, 0.0, 0.0
+    return signal_motion(kind[g], p, g, data, lo[g], hi[g], t - support_delay[s])
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def force_value(t, program, f):
+    """Value of force item f's signal at t (s), before the item's scale."""
+    kind, p, lo, hi, data, _, _, force_signal = program
+    g = force_signal[f]
+    return signal_motion(kind[g], p, g, data, lo[g], hi[g], t)[0]
+
+
+@njit(cache=True, inline="always", error_model="numpy")
 def input_values(t, program, row, U, Ud, Udd, FF):
     """Every support's motion and every force item's value at t (s), into row ``row``
     of U, Ud, Udd (rows × supports) and FF (rows × force items)."""
-    kind, p, lo, hi, data, support_signal, support_delay, force_signal = program
-    for s in range(support_signal.shape[0]):
-        g = support_signal[s]
-        if g < 0:
-            U[row, s] = 0.0
-            Ud[row, s] = 0.0
-            Udd[row, s] = 0.0
-        else:
-            U[row, s], Ud[row, s], Udd[row, s] = signal_motion(kind[g], p, g, data, lo[g], hi[g],
-                                                               t - support_delay[s])  # fmt: skip
-    for f in range(force_signal.shape[0]):
-        g = force_signal[f]
-        FF[row, f] = signal_motion(kind[g], p, g, data, lo[g], hi[g], t)[0]
+    for s in range(program[5].shape[0]):
+        U[row, s], Ud[row, s], Udd[row, s] = support_motion(t, program, s)
+    for f in range(program[7].shape[0]):
+        FF[row, f] = force_value(t, program, f)
 
 
 @njit(**HOT)

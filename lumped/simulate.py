@@ -30,6 +30,18 @@ from lumped.assemble import DENSE_LIMIT, Matrices, assemble, mass_solver
 from lumped.errors import LumpedError
 from lumped.excitation import Signal, signal_for
 from lumped.kernels import LEFT_LIMIT
+from lumped.linear_rk import (
+    SPECIALISE_STEPS,
+    Lanes,
+    affine_rk_work,
+    chunk_kernels,
+    input_table,
+    is_compiled,
+    lanes_of,
+    put_rows,
+    rk_maps,
+    unblocked,
+)
 from lumped.linear_steppers import DENSE_MAP_LIMIT, affine_maps, sparse_update
 from lumped.model import System
 from lumped.stability import StepCheck, check_step, step_count
@@ -395,11 +407,17 @@ class Prepared:
     table: _Elements
     inputs: _Inputs
     model: tuple  # the kernels' model tuple without its work array (see lumped.kernels)
+    lanes: Lanes | None = None  # small linear systems: explicit RK steps as affine maps
+    maps: dict = field(default_factory=dict, compare=False, repr=False)  # their maps, by (stepper, step)
 
 
 @_plain_pages()
-def prepare(system: System) -> Prepared:
+def prepare(system: System, lanes: int = 1) -> Prepared:
     """Assemble ``system`` and set up what its runs share (see :class:`Prepared`).
+
+    ``lanes``: the system is that many copies of one structure side by side (variants,
+    as :mod:`lumped.variants` lays them out); small linear ones then step each copy as
+    a lane of :mod:`lumped.linear_rk` under explicit Runge–Kutta steppers.
 
     Raises
     ------
@@ -417,7 +435,7 @@ def prepare(system: System) -> Prepared:
     force_body = np.array([matrices.body_ids.index(system.forces[f].on) for f in matrices.force_ids], dtype=np.int64)
     model = (table.links(), table.nonlinear(), table.inerters(), table.args(), *_inverse_mass(matrices),
              force_body, inputs.scales.astype(float))  # fmt: skip
-    return Prepared(system, matrices, static, table, inputs, model)
+    return Prepared(system, matrices, static, table, inputs, model, lanes_of(model, inputs.program, matrices.n, lanes))
 
 
 
@@ -433,6 +451,7 @@ def simulate(
     progress: Callable[[float], None] | None = None,
     cancel: Callable[[], bool] | None = None,
     check: bool = True,
+    specialise: bool | None = None,
 ) -> RunResult:
     """Run ``system`` (or a :class:`Prepared` one) with a fixed-step ``stepper`` (id
     or :class:`Stepper`) or an adaptive scipy method (``"adaptive-rk45"`` …), from
@@ -453,6 +472,14 @@ def simulate(
         Called between chunks; True stops the run, keeping the samples so far.
     check : bool
         Attach the step check (:func:`lumped.stability.check_step`) of this stepper and step.
+    specialise : bool or None
+        Small linear systems (and batches of their variants) under explicit
+        Runge–Kutta steppers can step with a kernel generated for their structure
+        (:mod:`lumped.linear_rk`): the same steps, several times faster, after a
+        compile of 5–15 s once per structure and machine (cached on disk). None: use it
+        when it is compiled already or the run has at least
+        :data:`lumped.linear_rk.SPECIALISE_STEPS` steps (times variants); True: compile
+        it if need be; False: never.
 
     Raises
     ------
@@ -502,15 +529,16 @@ def simulate(
             f"over the cap of {_size(cap)}; lower the output rate or raise the cap"
         )
     verdict = check_step(matrices, stepper, dt, duration) if check else None
-    engine = _Engine(prepared, stepper, dt, duration, steps, output_every, samples)
+    engine = _Engine(prepared, stepper, dt, duration, steps, output_every, samples, specialise)
     return engine.run(progress, cancel, verdict)
 
 
 class _Engine:
     """One fixed-step run: set-up, chunk loop, jumps, post-processing."""
 
-    def __init__(self, prepared: Prepared, stepper, dt, duration, steps, output_every, samples):
+    def __init__(self, prepared: Prepared, stepper, dt, duration, steps, output_every, samples, specialise=None):
         system = self.system = prepared.system
+        self.prepared = prepared
         matrices = self.m = prepared.matrices
         static = prepared.static
         self.stepper = stepper
@@ -520,6 +548,8 @@ class _Engine:
         self.every = output_every
         self.table = prepared.table
         self.inputs = prepared.inputs
+        self.lanes = prepared.lanes if specialise is not False else None
+        self.specialise = specialise
         self.model = (*prepared.model, np.zeros(matrices.n))  # work space of its own
         n = matrices.n
         self.q = np.array([system.bodies[b].initial_displacement for b in matrices.body_ids], dtype=float)
@@ -656,6 +686,8 @@ class _Engine:
             t0, h = substep
             return [(k0, 1, h, (t0, 0.0, self.offsets))]
         short = self.T - (self.steps - 1) * self.h
+        if abs(short - self.h) <= LEFT_LIMIT * self.h:  # a whole number of steps but for rounding
+            short = self.h
         runs = [(k0, count)]
         if k0 + count == self.steps and short != self.h and count > 1:
             runs = [(k0, count - 1), (self.steps - 1, 1)]
@@ -677,6 +709,10 @@ class _Engine:
             self.offsets = np.unique(np.concatenate([c, [1.0]]))
             stage_col = np.searchsorted(self.offsets, c).astype(np.int64)
             end_col = int(np.searchsorted(self.offsets, 1.0))
+            if self.lanes is not None:
+                self._kernel = self._affine_rk_kernel(a, b, stage_col, end_col)
+                if self._kernel is not None:
+                    return
             work = kernels.rk_work(len(b), self.m.n, self.inputs.program, self.offsets, len(self.watch_element))
 
             def kernel(start, n, h, clock):
@@ -706,6 +742,55 @@ class _Engine:
             else:
                 kernel = self._affine_kernel()
         self._kernel = kernel
+
+    def _affine_rk_kernel(self, a, b, stage_col, end_col):
+        """An explicit Runge–Kutta stepper on a small linear system (or on lanes of
+        variants): one affine map per step (:mod:`lumped.linear_rk`), made once per
+        step length; None when the run should not compile its kernel (see
+        ``specialise`` of :func:`simulate`)."""
+        lanes, memo, work = self.lanes, self.prepared.maps, {}
+        n, columns = lanes.n, len(self.offsets)
+
+        def maps_at(h):
+            key = (a.tobytes(), b.tobytes(), h)
+            if key not in memo:
+                maps = rk_maps(lanes, a, b, stage_col, columns, end_col, h)
+                memo[key] = maps, chunk_kernels(2 * n, maps.inputs, maps.rates)
+            return memo[key]
+
+        maps, _ = maps_at(self.h)
+        if self.specialise is None and self.steps * lanes.count < SPECIALISE_STEPS and not is_compiled(
+            2 * n, maps.inputs, maps.rates, "one" if lanes.count == 1 else "lanes"
+        ):
+            return None
+
+        def kernel(start, count, h, clock):
+            maps, (one, many) = maps_at(h)
+            if h not in work:
+                work[h] = affine_rk_work(maps, lanes, columns, min(CHUNK_STEPS, self.steps), self.every)
+            lane, tables, scratch = work[h]
+            input_table(lanes.program, clock, start, count, h, *tables)
+            put_rows(lane, np.concatenate([self.q.reshape(lanes.count, n).T, self.v.reshape(lanes.count, n).T]))
+            start_lane, start_energy = lane.copy(), self.energy.copy()
+
+            def chunk(steps):
+                if lanes.count == 1:
+                    return one(maps.step, maps.sample, lane, self.energy, start, steps, *tables,
+                               *self._output_buffers(), self.q_limit)  # fmt: skip
+                return many(maps.step, maps.sample, lane, scratch[0], self.energy, start, steps, *tables, *scratch[1:],
+                            *self._output_buffers(), self.q_limit)  # fmt: skip
+
+            status, done, samples = chunk(count)
+            if status != kernels.OK and lanes.count > 1:  # every lane again, to the step where one diverged
+                lane[:], self.energy[:] = start_lane, start_energy
+                _, done, samples = chunk(done)
+            status = kernels.DIVERGED if status != kernels.OK else status
+            self.count = samples
+            z = unblocked(lane, 2 * n, lanes.count)
+            self.q, self.v = z[:n].T.ravel(), z[n:].T.ravel()
+            return status, done
+
+        return kernel
 
     def _implicit_kernel(self, coefficients):
         """Newmark, trapezoid, backward Euler or central difference on a nonlinear system: Newton's method

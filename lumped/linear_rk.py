@@ -1,0 +1,622 @@
+"""Explicit Runge–Kutta steps of small linear systems as one affine map per step, for
+one system or for many variants stepped side by side ("lanes").
+
+On a linear system z' = A z + B w(t), z = (q, v), an explicit Runge–Kutta step is
+exactly an affine map of the step's start state and the inputs at its distinct stage
+times: z₁ = P x with x = (z, w(t + c₁h), …). The energy rates of the element loop
+(dissipation, work by supports and by forces) are quadratic forms of a state and its
+inputs, so the energy the stepping kernel integrates with the tableau's weights,
+h Σⱼ bⱼ r(Yⱼ, wⱼ), is a quadratic form of x as well: E = xᵀ Q x. Both come out equal
+to the stage-by-stage kernel up to rounding; what changes is the cost. A step of the
+2-body corner costs one small matrix product here instead of four passes of the
+element loop.
+
+A, B and the rate forms are read off the engine's own element loop
+(:func:`lumped.kernels.body_accelerations`) by probing it with unit vectors, so the
+physics stays written once; a probe at a random point checks that the system is
+linear before this path is taken. The kernel accumulates the outer products of x
+and turns them into energy only at output samples.
+
+Lanes: variants laid side by side (:mod:`lumped.variants`) form a block-diagonal
+system whose blocks share their structure and the inputs. Each block is a lane
+with maps of its own; the inputs are evaluated once per step for all lanes, and the
+lanes of a block of :data:`LANE_BLOCK` are stepped together through a chunk of
+steps while their maps stay in the first-level cache.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import importlib.util
+import os
+import sys
+import tempfile
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+from numba import njit
+
+from lumped.kernels import body_accelerations, stage_time
+from lumped.signal_kernels import HOT, force_value, support_motion
+
+__all__ = ["Lanes", "lanes_of", "RKMaps", "rk_maps", "input_table", "chunk_kernels", "is_compiled", "SPECIALISE_STEPS", "AFFINE_RK_LIMIT", "LANE_BLOCK"]
+
+#: Bodies per lane up to which explicit Runge–Kutta runs of linear systems take the
+#: affine map (its cost grows as the square of the state; the element loop's as
+#: the number of elements).
+AFFINE_RK_LIMIT = 4
+#: Lanes stepped together through a chunk.
+LANE_BLOCK = 16
+#: Lane-steps from which a run compiles its generated kernel when it is not in the
+#: on-disk cache yet (the compile takes some 5 s for one lane, 15 s for many; the
+#: kernel saves some 0.1 µs per lane-step).
+SPECIALISE_STEPS = 10**8
+#: The chunk kernel's sums may be evaluated in any order (and with fused
+#: multiply-adds); results differ from the element-loop kernel's by rounding only.
+REORDERED = dict(HOT, fastmath={"reassoc", "contract"})
+
+
+@dataclass(frozen=True)
+class Lanes:
+    """A linear system as ``count`` independent copies (lanes) of one structure with
+    ``n`` bodies each, and the first-order form of every lane read off the element
+    loop: ``A`` (count, 2n, 2n), ``B`` (count, 2n, nw) on w = [u, u', u'', F] (the
+    lane's own force items), ``forms`` (count, 3, d, d) with d = 2n + nw: the energy
+    rates (dissipation, supports' work, forces' work; W) as yᵀ S y of y = (q, v, w).
+    ``program`` is the input program of one lane."""
+
+    count: int
+    n: int
+    A: np.ndarray
+    B: np.ndarray
+    forms: np.ndarray
+    program: tuple
+
+
+def lanes_of(model: tuple, program: tuple, n_bodies: int, count: int) -> Lanes | None:
+    """The lanes of a system whose bodies are ``count`` consecutive groups of equal
+    size (variant-major, as :mod:`lumped.variants` lays them out; ``count`` = 1 for a
+    single system), from its kernel ``model`` and input ``program``; None when the
+    system is not linear, has inerters or a coupled mass matrix, has lanes of more than
+    :data:`AFFINE_RK_LIMIT` bodies, or its groups do not share one structure."""
+    links, nonlinear, inerters, table, m_ptr, m_col, m_val, fbody, fscale = model
+    if count < 1 or n_bodies % count or len(nonlinear) or len(inerters) or m_ptr[n_bodies] != n_bodies:
+        return None
+    n = n_bodies // count
+    if n > AFFINE_RK_LIMIT:
+        return None
+    la, lb, lk, lc = links
+    total = len(la)
+    if total % count or np.any((la >= n_bodies) & (lb >= n_bodies)):
+        return None
+    lane = np.where(la < n_bodies, la, lb) // n
+
+    def local(node):
+        return np.where(node < n_bodies, node % n, node - n_bodies + n)
+
+    order = np.lexsort((local(lb), local(la), lane))
+    per = total // count
+    if np.any(np.bincount(lane, minlength=count) != per):
+        return None
+    la_l, lb_l = (local(x[order]).reshape(count, per) for x in (la, lb))
+    forces = len(fbody) // count if count else 0
+    f_lane, f_local = fbody.reshape(count, forces) // n, fbody.reshape(count, forces) % n
+    force_signal = program[7].reshape(count, forces)
+    if (np.any(la_l != la_l[0]) or np.any(lb_l != lb_l[0]) or np.any(f_lane != np.arange(count)[:, None])
+            or np.any(f_local != f_local[0]) or np.any(force_signal != force_signal[0])):  # fmt: skip
+        return None
+    lane_program = (*program[:7], force_signal[0].copy())
+    ns = len(program[5])
+    d = 2 * n + 3 * ns + forces
+    dynamics = np.zeros((count, n, d))
+    forms = np.zeros((count, 3, d, d))
+    values = (lk[order].reshape(count, per), lc[order].reshape(count, per), m_val.reshape(count, n),
+              fscale.reshape(count, forces))  # fmt: skip
+    _probe(la_l[0].copy(), lb_l[0].copy(), *values, f_local[0].copy(), ns, table, dynamics, forms)
+    if not _is_linear(la_l[0].copy(), lb_l[0].copy(), values, f_local[0].copy(), ns, table, dynamics, forms):
+        return None
+    nz = 2 * n
+    A = np.zeros((count, nz, nz))
+    A[:, :n, n:] = np.eye(n)
+    A[:, n:, :] = dynamics[:, :, :nz]
+    B = np.zeros((count, nz, d - nz))
+    B[:, n:, :] = dynamics[:, :, nz:]
+    return Lanes(count, n, A, B, forms, lane_program)
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _evaluate(y, n, ns, la, lb, lk, lc, m_inv, fbody, fscale, table, U, Ud, Udd, FF, acc, rates, scratch):
+    """Body accelerations and energy rates of one lane at y = (q, v, u, u', u'', F)."""
+    for s in range(ns):
+        U[0, s] = y[2 * n + s]
+        Ud[0, s] = y[2 * n + ns + s]
+        Udd[0, s] = y[2 * n + 2 * ns + s]
+    for f in range(fbody.shape[0]):
+        FF[0, f] = y[2 * n + 3 * ns + f]
+    empty = np.zeros(0, dtype=np.int64)
+    pointers = np.arange(n + 1)
+    model = ((la, lb, lk, lc), empty, empty, table, pointers, pointers[:n], m_inv, fbody, fscale, scratch)
+    body_accelerations(y[:n], y[n : 2 * n], U, Ud, Udd, FF, 0, model, acc, rates)
+
+
+@njit(cache=True, error_model="numpy")
+def _probe(la, lb, lk, lc, m_inv, fscale, fbody, ns, table, dynamics, forms):
+    """Per lane: the accelerations' columns (``dynamics``, n × d) at unit vectors of
+    y = (q, v, w), and the rate forms by polarisation, S_ab = (r(e_a + e_b) − r(e_a)
+    − r(e_b)) / 2."""
+    count, n = m_inv.shape
+    d = dynamics.shape[2]
+    nf = fbody.shape[0]
+    y = np.zeros(d)
+    U, Ud, Udd, FF = np.zeros((1, ns)), np.zeros((1, ns)), np.zeros((1, ns)), np.zeros((1, nf))
+    acc, rates, scratch = np.zeros(n), np.zeros(3), np.zeros(n)
+    single = np.zeros((d, 3))
+    for i in range(count):
+        for a in range(d):
+            y[a] = 1.0
+            _evaluate(y, n, ns, la, lb, lk[i], lc[i], m_inv[i], fbody, fscale[i], table, U, Ud, Udd, FF,
+                      acc, rates, scratch)  # fmt: skip
+            y[a] = 0.0
+            dynamics[i, :, a] = acc
+            single[a] = rates
+            for p in range(3):
+                forms[i, p, a, a] = rates[p]
+        for a in range(d):
+            for b in range(a + 1, d):
+                y[a] = 1.0
+                y[b] = 1.0
+                _evaluate(y, n, ns, la, lb, lk[i], lc[i], m_inv[i], fbody, fscale[i], table, U, Ud, Udd, FF,
+                          acc, rates, scratch)  # fmt: skip
+                y[a] = 0.0
+                y[b] = 0.0
+                for p in range(3):
+                    forms[i, p, a, b] = forms[i, p, b, a] = 0.5 * (rates[p] - single[a, p] - single[b, p])
+
+
+def _is_linear(la, lb, values, fbody, ns, table, dynamics, forms) -> bool:
+    """True when the probed maps reproduce the element loop at a random point of every
+    lane (accelerations linear, rates quadratic, to 10⁻⁹ of their size)."""
+    lk, lc, m_inv, fscale = values
+    count, n = m_inv.shape
+    y = np.random.default_rng(0).standard_normal((count, dynamics.shape[2]))
+    acc, rates = np.zeros((count, n)), np.zeros((count, 3))
+    _evaluate_lanes(y, n, ns, la, lb, lk, lc, m_inv, fbody, fscale, table, acc, rates)
+    linear = np.einsum("ira,ia->ir", dynamics, y)
+    quadratic = np.einsum("ia,ipab,ib->ip", y, forms, y)
+    scale_a = np.abs(np.einsum("ira,ia->ira", dynamics, y)).sum(axis=2) + 1e-300
+    scale_r = np.abs(np.einsum("ia,ipab,ib->ipab", y, forms, y)).sum(axis=(2, 3)) + 1e-300
+    return bool(np.all(np.abs(linear - acc) <= 1e-9 * scale_a) and np.all(np.abs(quadratic - rates) <= 1e-9 * scale_r))
+
+
+@njit(cache=True, error_model="numpy")
+def _evaluate_lanes(y, n, ns, la, lb, lk, lc, m_inv, fbody, fscale, table, acc, rates):
+    nf = fbody.shape[0]
+    U, Ud, Udd, FF = np.zeros((1, ns)), np.zeros((1, ns)), np.zeros((1, ns)), np.zeros((1, nf))
+    scratch = np.zeros(n)
+    for i in range(y.shape[0]):
+        _evaluate(y[i], n, ns, la, lb, lk[i], lc[i], m_inv[i], fbody, fscale[i], table, U, Ud, Udd, FF,
+                  acc[i], rates[i], scratch)  # fmt: skip
+
+
+@dataclass(frozen=True)
+class RKMaps:
+    """One tableau's step on every lane, as rows of two arrays laid out in blocks of
+    :data:`LANE_BLOCK` lanes (flat: block, row, lane in block; lanes padded with zeros
+    to whole blocks), so that the generated kernel reads them at constant offsets and
+    the compiler vectorises over the lanes of a block.
+
+    With x = (z, w) — z the lane's state (2n) and w the step's inputs that reach it
+    (``inputs``: (stage-time row, kind, item) each, kind 0 u, 1 u', 2 u'', 3 F):
+
+    - ``step`` rows: P_z (2n × 2n) then P_w (2n × kept), z₁ = P_z z + P_w w;
+    - ``sample`` rows: A_z (n × 2n) and A_w (n × kept), the acceleration at the step's
+      end A_z z₁ + A_w w; then per rate p (dissipation, supports, forces) the energy
+      increment's coefficients of z_a z_b (a ≤ b), z_a w_b and w_a w_b (a ≤ b).
+    """
+
+    step: np.ndarray
+    sample: np.ndarray
+    inputs: tuple[tuple[int, int, int], ...]
+    rates: tuple[int, ...]  # the rates some lane has
+
+
+def rk_maps(lanes: Lanes, a: np.ndarray, b: np.ndarray, stage_col: np.ndarray, columns: int, end_col: int,
+            h: float) -> RKMaps:  # fmt: skip
+    """The maps of the explicit tableau (a, b) at step ``h`` (s); stage j reads the
+    inputs of row ``stage_col[j]`` of the step's ``columns`` stage times, the step's
+    end those of row ``end_col``. Input kinds that reach no lane (u'' without
+    inerters, say) are left out."""
+    A, B, S = lanes.A, lanes.B, lanes.forms
+    count, nz, nw = B.shape
+    nx = nz + columns * nw
+    head = np.zeros((nz, nx))
+    head[:, :nz] = np.eye(nz)
+
+    def select(col):
+        out = np.zeros((nw, nx))
+        out[:, nz + col * nw : nz + (col + 1) * nw] = np.eye(nw)
+        return out
+
+    slopes, step, energy = [], np.broadcast_to(head, (count, nz, nx)).copy(), np.zeros((count, 3, nx, nx))
+    for j in range(len(b)):
+        stage = head + h * sum((a[j, i] * slopes[i] for i in range(j) if a[j, i] != 0.0), np.zeros((count, nz, nx)))
+        inputs = select(stage_col[j])
+        slopes.append(A @ stage + B @ inputs)
+        full = np.concatenate([stage, np.broadcast_to(inputs, (count, nw, nx))], axis=1)[:, None]
+        energy += h * b[j] * (np.swapaxes(full, 2, 3) @ (S @ full))
+        step += h * b[j] * slopes[j]
+    n = nz // 2
+    acc_w = B[:, n:, :] @ select(end_col)
+    ns, nf = len(lanes.program[5]), len(lanes.program[7])
+    kinds = [(0, s) for s in range(ns)] + [(1, s) for s in range(ns)] + [(2, s) for s in range(ns)] + [(3, f) for f in range(nf)]
+    reach = (np.any(step[:, :, nz:] != 0, axis=(0, 1)) | np.any(energy[:, :, nz:, :] != 0, axis=(0, 1, 3))
+             | np.any(acc_w[:, :, nz:] != 0, axis=(0, 1))).reshape(columns, nw).any(axis=0)  # fmt: skip
+    used = [kind for kind in range(4) if any(reach[k] for k, (kk, _) in enumerate(kinds) if kk == kind)]
+    keep = [(c, k) for c in range(columns) for k, (kind, _) in enumerate(kinds) if kind in used]
+    kept = nz + np.array([c * nw + k for c, k in keep], dtype=np.int64)
+    zi, zj = np.triu_indices(nz)
+    wi, wj = np.triu_indices(len(keep))
+
+    def rows(x):
+        """(lanes, …) → (…, lanes) flattened to rows."""
+        return np.ascontiguousarray(np.moveaxis(x, 0, -1).reshape(-1, count))
+
+    def doubled(i, j):
+        return np.where(i == j, 1.0, 2.0)
+
+    return RKMaps(
+        step=blocked(np.concatenate([rows(step[:, :, :nz]), rows(step[:, :, kept])])),
+        sample=blocked(np.concatenate([rows(A[:, n:, :]), rows(acc_w[:, :, kept]),
+                                       rows(energy[:, :, zi, zj] * doubled(zi, zj)),
+                                       rows(2.0 * energy[:, :, :nz][:, :, :, kept]),
+                                       rows(energy[:, :, kept[wi], kept[wj]] * doubled(wi, wj))])),  # fmt: skip
+        inputs=tuple((c, *kinds[k]) for c, k in keep),
+        rates=tuple(int(p) for p in np.flatnonzero(np.any(energy != 0, axis=(0, 2, 3)))),
+    )
+
+
+def blocked(rows: np.ndarray) -> np.ndarray:
+    """(rows, lanes) → flat (blocks, rows, :data:`LANE_BLOCK`), padded with zero lanes."""
+    count = rows.shape[1]
+    blocks = -(-count // LANE_BLOCK)
+    padded = np.zeros((rows.shape[0], blocks * LANE_BLOCK))
+    padded[:, :count] = rows
+    return np.ascontiguousarray(padded.reshape(rows.shape[0], blocks, LANE_BLOCK).transpose(1, 0, 2)).ravel()
+
+
+def _grid(flat: np.ndarray, count: int) -> np.ndarray:
+    """A :func:`blocked` array of ``count`` lanes as a (blocks, rows, LANE_BLOCK) view."""
+    blocks = -(-count // LANE_BLOCK)
+    return flat.reshape(blocks, flat.size // (blocks * LANE_BLOCK), LANE_BLOCK)
+
+
+def unblocked(flat: np.ndarray, rows: int, count: int) -> np.ndarray:
+    """The first ``rows`` rows of a :func:`blocked` array of ``count`` lanes, as (rows, lanes)."""
+    return _grid(flat, count)[:, :rows, :].transpose(1, 0, 2).reshape(rows, -1)[:, :count]
+
+
+def put_rows(flat: np.ndarray, rows: np.ndarray) -> None:
+    """Overwrite the first rows of a :func:`blocked` array with ``rows`` (rows, lanes)."""
+    grid = _grid(flat, rows.shape[1])
+    grid[:, : rows.shape[0], :] = _grid(blocked(rows), rows.shape[1])
+
+
+@njit(**HOT)
+def input_table(program, clock, k0, nsteps, h, U, Ud, Udd, FF):
+    """The inputs of steps k0 … k0+nsteps−1 at their stage times: row j of U, Ud, Udd
+    (steps × stage times × supports) and FF (× force items), as
+    :func:`lumped.kernels._step_inputs` reads them, one input at a time (a tight loop
+    over the steps for each)."""
+    for c in range(U.shape[1]):
+        for s in range(U.shape[2]):
+            for j in range(nsteps):
+                U[j, c, s], Ud[j, c, s], Udd[j, c, s] = support_motion(stage_time(clock, k0 + j, h, c), program, s)
+        for f in range(FF.shape[2]):
+            for j in range(nsteps):
+                FF[j, c, f] = force_value(stage_time(clock, k0 + j, h, c), program, f)
+
+
+def affine_rk_work(maps: RKMaps, lanes: Lanes, columns: int, steps: int, every: int) -> tuple:
+    """Work arrays of the chunk kernels, for chunks of up to ``steps`` steps with a
+    sample every ``every`` steps: the :func:`blocked` lane array (rows: the state z,
+    then the sums of z_a z_b and z_a w_b over the chunk), the input tables of
+    :func:`input_table`, and the scratch of :func:`lanes_chunk`."""
+    nz, kept = 2 * lanes.n, len(maps.inputs)
+    ns, nf = len(lanes.program[5]), len(lanes.program[7])
+    lane = blocked(np.zeros((nz, lanes.count)))
+    blocks = -(-lanes.count // LANE_BLOCK)
+    tables = (np.empty((steps, columns, ns)), np.empty((steps, columns, ns)), np.empty((steps, columns, ns)),
+              np.empty((steps, columns, nf)))  # fmt: skip
+    pairs = kept * (kept + 1) // 2
+    scratch = (np.zeros(blocks * (nz * (nz + 1) // 2 + nz * kept) * LANE_BLOCK), np.empty((steps // every + 1, pairs)),
+               np.empty(pairs))  # fmt: skip
+    return lane, tables, scratch
+
+
+def chunk_kernels(nz: int, inputs: tuple[tuple[int, int, int], ...], rates: tuple[int, ...]):
+    """The compiled chunk kernels ``(one, lanes)`` for lanes of state size ``nz``
+    reading ``inputs`` and integrating ``rates`` (see :class:`RKMaps`): generated
+    Python with every sum written out at constant offsets, compiled by numba on first
+    use and cached on disk (:func:`_generated_module`). Signatures::
+
+        one(step, sample, lane, energy, k0, nsteps, U, Ud, Udd, FF,
+            out_every, out_q, out_v, out_a, out_e, out_step, n_out, q_limit)
+        lanes(step, sample, lane, sums, energy, k0, nsteps, U, Ud, Udd, FF, snap,
+              out_every, out_q, out_v, out_a, out_e, out_step, n_out, q_limit)
+            -> (status, steps done, samples written)
+
+    Both advance the lanes (the :func:`blocked` state ``lane``) ``nsteps`` steps from
+    global step k0, reading the tables of :func:`input_table`. Samples are written
+    after each step whose global index is a multiple of ``out_every``, lane i's bodies
+    at columns i·n … i·n + n − 1; ``energy`` (3) gains the energy of every lane.
+    ``one`` runs a single lane with its maps, state and sums in local variables. For
+    many lanes, ``lanes`` takes the inputs' products once per step, then runs the
+    chunk block by block (:data:`LANE_BLOCK` lanes, the lane index innermost, which
+    the compiler vectorises), the sums in ``sums``. A lane beyond ``q_limit`` (or not
+    a number) stops its block and limits the blocks after it: the caller runs the
+    chunk again from its start to the returned step count, so that every lane ends at
+    the same step.
+    """
+    key = (nz, inputs, rates)
+    if key not in _KERNELS:
+        module = _generated_module(_kernel_source(nz, inputs, rates))
+        _KERNELS[key] = module.one, module.lanes
+    return _KERNELS[key]
+
+
+def is_compiled(nz: int, inputs: tuple[tuple[int, int, int], ...], rates: tuple[int, ...], function: str) -> bool:
+    """True when the generated kernel ``function`` ("one" or "lanes") for this
+    structure is in numba's on-disk cache already (a first run then costs no compile)."""
+    name = _module_name(_kernel_source(nz, inputs, rates))
+    return any((_cache_directory() / "__pycache__").glob(f"{name}.{function}-*.nbi"))
+
+
+def _module_name(source: str) -> str:
+    return "lumped_kernel_" + hashlib.sha256(source.encode()).hexdigest()[:16]
+
+
+_KERNELS: dict = {}
+
+
+def _kernel_source(nz: int, inputs, rates) -> str:
+    n, kept = nz // 2, len(inputs)
+    block = LANE_BLOCK
+    table = ("U", "Ud", "Udd", "FF")
+    pairs_z = [(a, b) for a in range(nz) for b in range(a, nz)]
+    pairs_w = [(a, b) for a in range(kept) for b in range(a, kept)]
+    # Rows of the lane array and of the maps (see RKMaps and affine_rk_work).
+    zz_row, zw_row = nz, nz + len(pairs_z)
+    lane_rows = zw_row + nz * kept
+    pw_row = nz * nz
+    step_rows = pw_row + nz * kept
+    aw_row = n * nz
+    zz_first = aw_row + n * kept  # then z_a z_b of each rate, z_a w_b of each, w_a w_b of each
+    zw_first = zz_first + 3 * len(pairs_z)
+    ww_first = zw_first + 3 * nz * kept
+
+    def lines(items, indent):
+        return "\n".join(" " * indent + item for item in items) if items else " " * indent + "pass"
+
+    def total(terms):
+        return " + ".join(terms) if terms else "0.0"
+
+    def coefficient(row):
+        return f"sample[{row * block}]"
+
+    def energies(target):
+        out = []
+        for p in rates:
+            terms = ([f"{coefficient(zz_first + p * len(pairs_z) + t)} * a{zz_row + t}" for t in range(len(pairs_z))]
+                     + [f"{coefficient(zw_first + p * nz * kept + c)} * a{zw_row + c}" for c in range(nz * kept)]
+                     + [f"{coefficient(ww_first + p * len(pairs_w) + t)} * r{t}" for t in range(len(pairs_w))])  # fmt: skip
+            out.append(f"{target(p)} += {total(terms)}")
+        return out
+
+    setup = ([f"c{r} = step[{r * block}]" for r in range(step_rows)]
+             + [f"z{a} = lane[{a * block}]" for a in range(nz)]
+             + [f"a{t} = 0.0" for t in range(nz, lane_rows)]
+             + [f"r{t} = 0.0" for t in range(len(pairs_w))])  # fmt: skip
+    body = (
+        [f"w{k} = {table[kind]}[j, {row}, {item}]" for k, (row, kind, item) in enumerate(inputs)]
+        + [f"r{t} += w{a} * w{b}" for t, (a, b) in enumerate(pairs_w)]
+        + [f"a{zz_row + t} += z{a} * z{b}" for t, (a, b) in enumerate(pairs_z)]
+        + [f"a{zw_row + a * kept + b} += z{a} * w{b}" for a in range(nz) for b in range(kept)]
+        + [f"y{r} = ({total([f'c{r * nz + a} * z{a}' for a in range(nz)])}) + "
+           f"({total([f'c{pw_row + r * kept + b} * w{b}' for b in range(kept)])})" for r in range(nz)]
+        + [f"z{r} = y{r}" for r in range(nz)]
+        + ["fine = " + " and ".join(f"abs(y{r}) <= q_limit" for r in range(n))]
+    )  # fmt: skip
+    sample = (
+        [f"out_q[m, {r}] = z{r}" for r in range(n)]
+        + [f"out_v[m, {r}] = z{n + r}" for r in range(n)]
+        + [f"out_a[m, {r}] = ({total([f'{coefficient(r * nz + a)} * z{a}' for a in range(nz)])}) + "
+           f"({total([f'{coefficient(aw_row + r * kept + b)} * w{b}' for b in range(kept)])})" for r in range(n)]
+        + [f"out_e[m, {p}] = energy[{p}]" for p in range(3)]
+        + energies(lambda p: f"out_e[m, {p}]")
+    )  # fmt: skip
+    store = [f"lane[{a * block}] = z{a}" for a in range(nz)] + energies(lambda p: f"energy[{p}]")
+
+    # Many lanes: rows of a block at constant offsets from lb (state), ub (sums),
+    # sb (step maps) and pb (sample maps).
+    def at(name, base, row):
+        return f"{name}[{base} + {row * block} + i]"
+
+    w_loads = [f"w{k} = {table[kind]}[j, {row}, {item}]" for k, (row, kind, item) in enumerate(inputs)]
+    z_loads = [f"z{a} = {at('lane', 'lb', a)}" for a in range(nz)]
+    lane_step = (
+        z_loads
+        + [f"{at('sums', 'ub', t)} += z{a} * z{b}" for t, (a, b) in enumerate(pairs_z)]
+        + [f"{at('sums', 'ub', len(pairs_z) + a * kept + b)} += z{a} * w{b}" for a in range(nz) for b in range(kept)]
+        + [f"y{r} = ({total([at('step', 'sb', r * nz + a) + f' * z{a}' for a in range(nz)])}) + "
+           f"({total([at('step', 'sb', pw_row + r * kept + b) + f' * w{b}' for b in range(kept)])})"
+           for r in range(nz)]
+        + [f"{at('lane', 'lb', r)} = y{r}" for r in range(nz)]
+        + [f"fine &= abs(y{r}) <= q_limit" for r in range(n)]
+    )  # fmt: skip
+
+    def block_energies(products):
+        out = []
+        for p in rates:
+            terms = ([f"{at('sample', 'pb', zz_first + p * len(pairs_z) + t)} * {at('sums', 'ub', t)}"
+                      for t in range(len(pairs_z))]
+                     + [f"{at('sample', 'pb', zw_first + p * nz * kept + c)} * {at('sums', 'ub', len(pairs_z) + c)}"
+                        for c in range(nz * kept)]
+                     + [f"{at('sample', 'pb', ww_first + p * len(pairs_w) + t)} * {products}{t}"
+                        for t in range(len(pairs_w))])  # fmt: skip
+            out.append(f"e{p} += {total(terms)}")
+        return out
+
+    lane_sample = (
+        z_loads
+        + [f"out_q[m, column + {r}] = z{r}" for r in range(n)]
+        + [f"out_v[m, column + {r}] = z{n + r}" for r in range(n)]
+        + [f"out_a[m, column + {r}] = ({total([at('sample', 'pb', r * nz + a) + f' * z{a}' for a in range(nz)])}) + "
+           f"({total([at('sample', 'pb', aw_row + r * kept + b) + f' * w{b}' for b in range(kept)])})"
+           for r in range(n)]
+    )  # fmt: skip
+    lanes_body = [*w_loads, "fine = True", f"for i in range({block}):", *("    " + x for x in lane_step)]
+    lanes_sample = (
+        [f"r{t} = snap[m - n_out, {t}]" for t in range(len(pairs_w))] + ["e0 = 0.0", "e1 = 0.0", "e2 = 0.0"]
+        + [f"for i in range({block}):  # padding lanes add zeros", *("    " + x for x in block_energies("r") or ["pass"])]
+        + [f"for i in range(min({block}, count - blk * {block})):", f"    column = (blk * {block} + i) * {n}",
+           *("    " + x for x in lane_sample)]
+        + [f"out_e[m, {p}] += e{p}" for p in range(3)]
+    )  # fmt: skip
+    return _TEMPLATE.format(
+        nz=nz, kept=kept, block=block, n=n, sum_rows=(len(pairs_z) + nz * kept) * block,
+        step_rows=step_rows * block, sample_rows=(ww_first + 3 * len(pairs_w)) * block,
+        setup=lines(setup, 4), store=lines(store, 4),
+        one_loop=_step_loop(4, "nsteps", body, sample), lanes_loop=_step_loop(8, "limit", lanes_body, lanes_sample),
+        r_init=lines([f"r{t} = 0.0" for t in range(len(pairs_w))], 4),
+        w_loads_1=lines(w_loads, 8),
+        products=lines([f"r{t} += w{a} * w{b}" for t, (a, b) in enumerate(pairs_w)], 8),
+        snap_store=lines([f"snap[m - n_out, {t}] = r{t}" for t in range(len(pairs_w))], 16),
+        final_loads=lines([f"r{t} = total[{t}]" for t in range(len(pairs_w))], 4),
+        snap_total=lines([f"total[{t}] = r{t}" for t in range(len(pairs_w))], 4),
+        lane_energy=lines(block_energies("r"), 12),
+    )  # fmt: skip
+
+
+def _step_loop(indent: int, steps: str, body: list[str], sample: list[str]) -> str:
+    """The generated step loop: ``body`` (which sets ``fine``) in every step, a stop
+    at the first step that is not fine, ``sample`` after every ``out_every``-th step."""
+    pad = " " * indent
+    inner = "\n".join(f"{pad}    {line}" for line in body)
+    at_sample = "\n".join(f"{pad}            {line}" for line in sample)
+    return (f"{pad}for j in range({steps}):\n{inner}\n{pad}    if not fine:\n{pad}        status = 1\n"
+            f"{pad}        limit = j + 1\n{pad}        break\n{pad}    until -= 1\n{pad}    if until == 0:\n"
+            f"{pad}        until = out_every\n{pad}        if m < capacity:\n{at_sample}\n"
+            f"{pad}            out_step[m] = k0 + j + 1\n{pad}            m += 1")  # fmt: skip
+
+
+_TEMPLATE = '''"""Generated by lumped.linear_rk: one lane of state size {nz} reading {kept} inputs.
+Do not edit: the file is made again when it is missing."""
+
+from numba import njit
+
+from lumped.float_mode import flush_subnormals, restore_float_mode
+from lumped.linear_rk import REORDERED
+
+
+@njit(**REORDERED)
+def one(step, sample, lane, energy, k0, nsteps, U, Ud, Udd, FF,
+        out_every, out_q, out_v, out_a, out_e, out_step, n_out, q_limit):
+    mode = flush_subnormals()
+    capacity = out_q.shape[0]
+{setup}
+    status = 0
+    limit = nsteps
+    m = n_out
+    until = out_every - k0 % out_every
+{one_loop}
+{store}
+    restore_float_mode(mode)
+    return status, limit, m
+
+
+@njit(**REORDERED)
+def lanes(step, sample, lane, sums, energy, k0, nsteps, U, Ud, Udd, FF, snap, total,
+          out_every, out_q, out_v, out_a, out_e, out_step, n_out, q_limit):
+    mode = flush_subnormals()
+    blocks = lane.shape[0] // {block} // {nz}
+    count = out_q.shape[1] // {n}
+    capacity = out_q.shape[0]
+    # The inputs' products, shared by every lane: running sums, kept at each sample.
+{r_init}
+    m = n_out
+    until = out_every - k0 % out_every
+    for j in range(nsteps):
+{w_loads_1}
+{products}
+        until -= 1
+        if until == 0:
+            until = out_every
+            if m < capacity:
+{snap_store}
+                for p in range(3):
+                    out_e[m, p] = energy[p]
+                m += 1
+{snap_total}
+    for x in range(sums.shape[0]):
+        sums[x] = 0.0
+    status = 0
+    limit = nsteps
+    for blk in range(blocks):
+        lb = blk * {nz} * {block}
+        ub = blk * {sum_rows}
+        sb = blk * {step_rows}
+        pb = blk * {sample_rows}
+        m = n_out
+        until = out_every - k0 % out_every
+{lanes_loop}
+{final_loads}
+    e0 = 0.0
+    e1 = 0.0
+    e2 = 0.0
+    for blk in range(blocks):
+        ub = blk * {sum_rows}
+        pb = blk * {sample_rows}
+        for i in range({block}):
+{lane_energy}
+    energy[0] += e0
+    energy[1] += e1
+    energy[2] += e2
+    restore_float_mode(mode)
+    return status, limit, m
+'''
+
+
+def _cache_directory() -> Path:
+    """Where generated kernels are written: ``LUMPED_KERNEL_CACHE``, else the user's
+    cache directory (``$XDG_CACHE_HOME/lumped`` or ``~/.cache/lumped``), else a
+    directory of this user's in the system's temporary directory."""
+    chosen = os.environ.get("LUMPED_KERNEL_CACHE")
+    home = Path(os.environ.get("XDG_CACHE_HOME") or Path.home() / ".cache") / "lumped"
+    for place in ([Path(chosen)] if chosen else []) + [home, Path(tempfile.gettempdir()) / f"lumped-{os.getuid()}"]:
+        try:
+            place.mkdir(parents=True, exist_ok=True)
+            if os.access(place, os.W_OK):
+                return place
+        except OSError:
+            continue
+    raise RuntimeError("no writable directory for lumped's generated kernels; set LUMPED_KERNEL_CACHE")
+
+
+def _generated_module(source: str):
+    """Import ``source`` as a module kept in the cache directory (written atomically
+    under a name taken from its hash, so that numba's on-disk cache finds it again)."""
+    name = _module_name(source)
+    path = _cache_directory() / f"{name}.py"
+    if not path.exists() or path.read_text() != source:
+        handle, temporary = tempfile.mkstemp(dir=path.parent, suffix=".tmp")
+        with os.fdopen(handle, "w") as file:
+            file.write(source)
+        os.replace(temporary, path)
+    if name in sys.modules:
+        return sys.modules[name]
+    spec = importlib.util.spec_from_file_location(name, path)
+    module = importlib.util.module_from_spec(spec)
+    sys.modules[name] = module  # numba's cache finds the module again by its name
+    spec.loader.exec_module(module)
+    return module
