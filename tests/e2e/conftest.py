@@ -41,9 +41,23 @@ def _free_port() -> int:
         return s.getsockname()[1]
 
 
+def _compile_kernels() -> None:
+    """Fill numba's on-disk cache with the kernels the browser tests' runs use, before
+    the server starts: on a fresh machine of two slow cores their first compile takes
+    longer than a browser wait should (the server then loads them from the cache)."""
+    import lumped
+    from lumped.simulate import simulate
+
+    system = lumped.load(lumped.demo_path("quarter_car"))
+    for stepper in ("rk4", "newmark"):
+        run = simulate(system, stepper, 2e-4, 0.01)
+        lumped.run_figures(system, run)
+
+
 @pytest.fixture(scope="session")
 def app_url(tmp_path_factory):
     _require_browser()
+    _compile_kernels()
     port = _free_port()
     log = open(tmp_path_factory.mktemp("streamlit") / "server.log", "w+")  # noqa: SIM115
     command = [
