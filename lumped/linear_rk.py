@@ -26,6 +26,7 @@ steps while their maps stay in the first-level cache.
 
 from __future__ import annotations
 
+import functools
 import hashlib
 import importlib.util
 import os
@@ -368,8 +369,16 @@ def chunk_kernels(nz: int, inputs: tuple[tuple[int, int, int], ...], rates: tupl
 def is_compiled(nz: int, inputs: tuple[tuple[int, int, int], ...], rates: tuple[int, ...], function: str) -> bool:
     """True when the generated kernel ``function`` ("one" or "lanes") for this
     structure is in numba's on-disk cache already (a first run then costs no compile)."""
+    if (nz, inputs, rates, function) in _COMPILED:
+        return True
     name = _module_name(_kernel_source(nz, inputs, rates))
-    return any((_cache_directory() / "__pycache__").glob(f"{name}.{function}-*.nbi"))
+    if any((_cache_directory() / "__pycache__").glob(f"{name}.{function}-*.nbi")):
+        _COMPILED.add((nz, inputs, rates, function))
+        return True
+    return False
+
+
+_COMPILED: set = set()
 
 
 def _module_name(source: str) -> str:
@@ -379,6 +388,7 @@ def _module_name(source: str) -> str:
 _KERNELS: dict = {}
 
 
+@functools.lru_cache(maxsize=64)
 def _kernel_source(nz: int, inputs, rates) -> str:
     n, kept = nz // 2, len(inputs)
     block = LANE_BLOCK
