@@ -372,7 +372,11 @@ def is_compiled(nz: int, inputs: tuple[tuple[int, int, int], ...], rates: tuple[
     if (nz, inputs, rates, function) in _COMPILED:
         return True
     name = _module_name(_kernel_source(nz, inputs, rates))
-    if any((_cache_directory() / "__pycache__").glob(f"{name}.{function}-*.nbi")):
+    try:
+        directory = _cache_directory()
+    except RuntimeError:
+        return False
+    if any((directory / "__pycache__").glob(f"{name}.{function}-*.nbi")):
         _COMPILED.add((nz, inputs, rates, function))
         return True
     return False
@@ -610,7 +614,10 @@ def _cache_directory() -> Path:
                 return place
         except OSError:
             continue
-    raise RuntimeError("no writable directory for lumped's generated kernels; set LUMPED_KERNEL_CACHE")
+    raise RuntimeError(
+        "no writable directory for lumped's generated kernels (tried $LUMPED_KERNEL_CACHE, the user's cache "
+        "directory and the temporary directory); set LUMPED_KERNEL_CACHE, or run with specialise=False"
+    )
 
 
 def _generated_module(source: str):

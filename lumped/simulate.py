@@ -754,18 +754,21 @@ class _Engine:
         def maps_at(h):
             key = (a.tobytes(), b.tobytes(), h)
             if key not in memo:
-                maps = rk_maps(lanes, a, b, stage_col, columns, end_col, h)
-                memo[key] = maps, chunk_kernels(2 * n, maps.inputs, maps.rates)
+                memo[key] = rk_maps(lanes, a, b, stage_col, columns, end_col, h)
             return memo[key]
 
-        maps, _ = maps_at(self.h)
+        maps = maps_at(self.h)
         if self.specialise is None and self.steps * lanes.count < SPECIALISE_STEPS and not is_compiled(
             2 * n, maps.inputs, maps.rates, "one" if lanes.count == 1 else "lanes"
         ):
             return None
 
         def kernel(start, count, h, clock):
-            maps, (one, many) = maps_at(h)
+            maps = maps_at(h)
+            try:
+                one, many = chunk_kernels(2 * n, maps.inputs, maps.rates)
+            except RuntimeError as exc:  # no place to write the generated kernel
+                raise RunError(str(exc)) from None
             if h not in work:
                 work[h] = affine_rk_work(maps, lanes, columns, min(CHUNK_STEPS, self.steps), self.every)
             lane, tables, scratch = work[h]
