@@ -89,7 +89,7 @@ def lanes_of(model: tuple, program: tuple, n_bodies: int, count: int) -> Lanes |
         return None
     la, lb, lk, lc = links
     total = len(la)
-    if total % count or np.any((la >= n_bodies) & (lb >= n_bodies)):
+    if total % count or len(fbody) % count or np.any((la >= n_bodies) & (lb >= n_bodies)):
         return None
     lane = np.where(la < n_bodies, la, lb) // n
 
@@ -101,7 +101,7 @@ def lanes_of(model: tuple, program: tuple, n_bodies: int, count: int) -> Lanes |
     if np.any(np.bincount(lane, minlength=count) != per):
         return None
     la_l, lb_l = (local(x[order]).reshape(count, per) for x in (la, lb))
-    forces = len(fbody) // count if count else 0
+    forces = len(fbody) // count
     f_lane, f_local = fbody.reshape(count, forces) // n, fbody.reshape(count, forces) % n
     force_signal = program[7].reshape(count, forces)
     if (np.any(la_l != la_l[0]) or np.any(lb_l != lb_l[0]) or np.any(f_lane != np.arange(count)[:, None])
@@ -320,9 +320,10 @@ def input_table(program, clock, k0, nsteps, h, U, Ud, Udd, FF):
 
 def affine_rk_work(maps: RKMaps, lanes: Lanes, columns: int, steps: int, every: int) -> tuple:
     """Work arrays of the chunk kernels, for chunks of up to ``steps`` steps with a
-    sample every ``every`` steps: the :func:`blocked` lane array (rows: the state z,
-    then the sums of z_a z_b and z_a w_b over the chunk), the input tables of
-    :func:`input_table`, and the scratch of :func:`lanes_chunk`."""
+    sample every ``every`` steps: the :func:`blocked` lane state z, the input tables
+    of :func:`input_table`, and the scratch of the many-lane kernel (the blocked sums
+    of z_a z_b and z_a w_b over a chunk, the inputs' products at samples and at the
+    chunk's end; see :func:`chunk_kernels`)."""
     nz, kept = 2 * lanes.n, len(maps.inputs)
     ns, nf = len(lanes.program[5]), len(lanes.program[7])
     lane = blocked(np.zeros((nz, lanes.count)))
@@ -399,9 +400,7 @@ def _kernel_source(nz: int, inputs, rates) -> str:
     table = ("U", "Ud", "Udd", "FF")
     pairs_z = [(a, b) for a in range(nz) for b in range(a, nz)]
     pairs_w = [(a, b) for a in range(kept) for b in range(a, kept)]
-    # Rows of the lane array and of the maps (see RKMaps and affine_rk_work).
-    zz_row, zw_row = nz, nz + len(pairs_z)
-    lane_rows = zw_row + nz * kept
+    # Rows of the maps (see RKMaps) and of the sums (z_a z_b, a ≤ b, then z_a w_b).
     pw_row = nz * nz
     step_rows = pw_row + nz * kept
     aw_row = n * nz
@@ -415,86 +414,80 @@ def _kernel_source(nz: int, inputs, rates) -> str:
     def total(terms):
         return " + ".join(terms) if terms else "0.0"
 
-    def coefficient(row):
-        return f"sample[{row * block}]"
+    def at(name, base, row):
+        """Entry ``row`` of a many-lane array: rows of a block at constant offsets from
+        lb (state), ub (sums), sb (step maps) or pb (sample maps)."""
+        return f"{name}[{base} + {row * block} + i]"
 
-    def energies(target):
+    def first_lane(name):
+        return lambda row: f"{name}[{row * block}]"
+
+    def step_lines(coefficient, sum_of, state):
+        """Add the step's start (z, w) to the sums, step z, check it: ``coefficient``,
+        ``sum_of`` and ``state`` name the step map's rows, the sums and z_r."""
+        return (
+            [f"{sum_of(t)} += z{a} * z{b}" for t, (a, b) in enumerate(pairs_z)]
+            + [f"{sum_of(len(pairs_z) + a * kept + b)} += z{a} * w{b}" for a in range(nz) for b in range(kept)]
+            + [f"y{r} = ({total([f'{coefficient(r * nz + a)} * z{a}' for a in range(nz)])}) + "
+               f"({total([f'{coefficient(pw_row + r * kept + b)} * w{b}' for b in range(kept)])})" for r in range(nz)]
+            + [f"{state(r)} = y{r}" for r in range(nz)]
+            + [f"fine &= abs(y{r}) <= q_limit" for r in range(n)]
+        )  # fmt: skip
+
+    def sample_lines(coefficient, column):
+        """Displacement, velocity and acceleration of the lane into sample m."""
+        return (
+            [f"out_q[m, {column}{r}] = z{r}" for r in range(n)]
+            + [f"out_v[m, {column}{r}] = z{n + r}" for r in range(n)]
+            + [f"out_a[m, {column}{r}] = ({total([f'{coefficient(r * nz + a)} * z{a}' for a in range(nz)])}) + "
+               f"({total([f'{coefficient(aw_row + r * kept + b)} * w{b}' for b in range(kept)])})" for r in range(n)]
+        )  # fmt: skip
+
+    def energies(coefficient, sum_of, target):
+        """Each rate's energy gained since the chunk's start, added to ``target(p)``."""
         out = []
         for p in rates:
-            terms = ([f"{coefficient(zz_first + p * len(pairs_z) + t)} * a{zz_row + t}" for t in range(len(pairs_z))]
-                     + [f"{coefficient(zw_first + p * nz * kept + c)} * a{zw_row + c}" for c in range(nz * kept)]
+            terms = ([f"{coefficient(zz_first + p * len(pairs_z) + t)} * {sum_of(t)}" for t in range(len(pairs_z))]
+                     + [f"{coefficient(zw_first + p * nz * kept + c)} * {sum_of(len(pairs_z) + c)}"
+                        for c in range(nz * kept)]
                      + [f"{coefficient(ww_first + p * len(pairs_w) + t)} * r{t}" for t in range(len(pairs_w))])  # fmt: skip
             out.append(f"{target(p)} += {total(terms)}")
         return out
 
+    w_loads = [f"w{k} = {table[kind]}[j, {row}, {item}]" for k, (row, kind, item) in enumerate(inputs)]
+    products = [f"r{t} += w{a} * w{b}" for t, (a, b) in enumerate(pairs_w)]
+
+    # One lane: maps, state and sums in local variables (c…, z…, a…; r… the products).
+    def local_sum(t):
+        return f"a{nz + t}"
+
     setup = ([f"c{r} = step[{r * block}]" for r in range(step_rows)]
              + [f"z{a} = lane[{a * block}]" for a in range(nz)]
-             + [f"a{t} = 0.0" for t in range(nz, lane_rows)]
+             + [f"{local_sum(t)} = 0.0" for t in range(len(pairs_z) + nz * kept)]
              + [f"r{t} = 0.0" for t in range(len(pairs_w))])  # fmt: skip
-    body = (
-        [f"w{k} = {table[kind]}[j, {row}, {item}]" for k, (row, kind, item) in enumerate(inputs)]
-        + [f"r{t} += w{a} * w{b}" for t, (a, b) in enumerate(pairs_w)]
-        + [f"a{zz_row + t} += z{a} * z{b}" for t, (a, b) in enumerate(pairs_z)]
-        + [f"a{zw_row + a * kept + b} += z{a} * w{b}" for a in range(nz) for b in range(kept)]
-        + [f"y{r} = ({total([f'c{r * nz + a} * z{a}' for a in range(nz)])}) + "
-           f"({total([f'c{pw_row + r * kept + b} * w{b}' for b in range(kept)])})" for r in range(nz)]
-        + [f"z{r} = y{r}" for r in range(nz)]
-        + ["fine = " + " and ".join(f"abs(y{r}) <= q_limit" for r in range(n))]
-    )  # fmt: skip
-    sample = (
-        [f"out_q[m, {r}] = z{r}" for r in range(n)]
-        + [f"out_v[m, {r}] = z{n + r}" for r in range(n)]
-        + [f"out_a[m, {r}] = ({total([f'{coefficient(r * nz + a)} * z{a}' for a in range(nz)])}) + "
-           f"({total([f'{coefficient(aw_row + r * kept + b)} * w{b}' for b in range(kept)])})" for r in range(n)]
-        + [f"out_e[m, {p}] = energy[{p}]" for p in range(3)]
-        + energies(lambda p: f"out_e[m, {p}]")
-    )  # fmt: skip
-    store = [f"lane[{a * block}] = z{a}" for a in range(nz)] + energies(lambda p: f"energy[{p}]")
+    body = [*w_loads, *products, "fine = True", *step_lines(lambda r: f"c{r}", local_sum, lambda r: f"z{r}")]
+    sample = (sample_lines(first_lane("sample"), "") + [f"out_e[m, {p}] = energy[{p}]" for p in range(3)]
+              + energies(first_lane("sample"), local_sum, lambda p: f"out_e[m, {p}]"))  # fmt: skip
+    store = [f"lane[{a * block}] = z{a}" for a in range(nz)] + energies(first_lane("sample"), local_sum,
+                                                                       lambda p: f"energy[{p}]")  # fmt: skip
 
-    # Many lanes: rows of a block at constant offsets from lb (state), ub (sums),
-    # sb (step maps) and pb (sample maps).
-    def at(name, base, row):
-        return f"{name}[{base} + {row * block} + i]"
+    # Many lanes: a block's lanes in the innermost loop, the sums in ``sums``.
+    def lane_sum(t):
+        return at("sums", "ub", t)
 
-    w_loads = [f"w{k} = {table[kind]}[j, {row}, {item}]" for k, (row, kind, item) in enumerate(inputs)]
-    z_loads = [f"z{a} = {at('lane', 'lb', a)}" for a in range(nz)]
-    lane_step = (
-        z_loads
-        + [f"{at('sums', 'ub', t)} += z{a} * z{b}" for t, (a, b) in enumerate(pairs_z)]
-        + [f"{at('sums', 'ub', len(pairs_z) + a * kept + b)} += z{a} * w{b}" for a in range(nz) for b in range(kept)]
-        + [f"y{r} = ({total([at('step', 'sb', r * nz + a) + f' * z{a}' for a in range(nz)])}) + "
-           f"({total([at('step', 'sb', pw_row + r * kept + b) + f' * w{b}' for b in range(kept)])})"
-           for r in range(nz)]
-        + [f"{at('lane', 'lb', r)} = y{r}" for r in range(nz)]
-        + [f"fine &= abs(y{r}) <= q_limit" for r in range(n)]
-    )  # fmt: skip
+    def lane_sample(row):
+        return at("sample", "pb", row)
 
-    def block_energies(products):
-        out = []
-        for p in rates:
-            terms = ([f"{at('sample', 'pb', zz_first + p * len(pairs_z) + t)} * {at('sums', 'ub', t)}"
-                      for t in range(len(pairs_z))]
-                     + [f"{at('sample', 'pb', zw_first + p * nz * kept + c)} * {at('sums', 'ub', len(pairs_z) + c)}"
-                        for c in range(nz * kept)]
-                     + [f"{at('sample', 'pb', ww_first + p * len(pairs_w) + t)} * {products}{t}"
-                        for t in range(len(pairs_w))])  # fmt: skip
-            out.append(f"e{p} += {total(terms)}")
-        return out
-
-    lane_sample = (
-        z_loads
-        + [f"out_q[m, column + {r}] = z{r}" for r in range(n)]
-        + [f"out_v[m, column + {r}] = z{n + r}" for r in range(n)]
-        + [f"out_a[m, column + {r}] = ({total([at('sample', 'pb', r * nz + a) + f' * z{a}' for a in range(nz)])}) + "
-           f"({total([at('sample', 'pb', aw_row + r * kept + b) + f' * w{b}' for b in range(kept)])})"
-           for r in range(n)]
-    )  # fmt: skip
-    lanes_body = [*w_loads, "fine = True", f"for i in range({block}):", *("    " + x for x in lane_step)]
+    lane_energies = energies(lane_sample, lane_sum, lambda p: f"e{p}") or ["pass"]
+    lanes_body = [*w_loads, "fine = True", f"for i in range({block}):",
+                  *("    " + x for x in [f"z{a} = {at('lane', 'lb', a)}" for a in range(nz)]
+                    + step_lines(lambda r: at("step", "sb", r), lane_sum, lambda r: at("lane", "lb", r)))]  # fmt: skip
     lanes_sample = (
         [f"r{t} = snap[m - n_out, {t}]" for t in range(len(pairs_w))] + ["e0 = 0.0", "e1 = 0.0", "e2 = 0.0"]
-        + [f"for i in range({block}):  # padding lanes add zeros", *("    " + x for x in block_energies("r") or ["pass"])]
+        + [f"for i in range({block}):  # padding lanes add zeros", *("    " + x for x in lane_energies)]
         + [f"for i in range(min({block}, count - blk * {block})):", f"    column = (blk * {block} + i) * {n}",
-           *("    " + x for x in lane_sample)]
+           *("    " + x for x in [f"z{a} = {at('lane', 'lb', a)}" for a in range(nz)]
+             + sample_lines(lane_sample, "column + "))]
         + [f"out_e[m, {p}] += e{p}" for p in range(3)]
     )  # fmt: skip
     return _TEMPLATE.format(
@@ -504,11 +497,11 @@ def _kernel_source(nz: int, inputs, rates) -> str:
         one_loop=_step_loop(4, "nsteps", body, sample), lanes_loop=_step_loop(8, "limit", lanes_body, lanes_sample),
         r_init=lines([f"r{t} = 0.0" for t in range(len(pairs_w))], 4),
         w_loads_1=lines(w_loads, 8),
-        products=lines([f"r{t} += w{a} * w{b}" for t, (a, b) in enumerate(pairs_w)], 8),
+        products=lines(products, 8),
         snap_store=lines([f"snap[m - n_out, {t}] = r{t}" for t in range(len(pairs_w))], 16),
         final_loads=lines([f"r{t} = total[{t}]" for t in range(len(pairs_w))], 4),
         snap_total=lines([f"total[{t}] = r{t}" for t in range(len(pairs_w))], 4),
-        lane_energy=lines(block_energies("r"), 12),
+        lane_energy=lines(lane_energies, 12),
     )  # fmt: skip
 
 

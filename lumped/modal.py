@@ -252,7 +252,8 @@ def modal_analysis(matrices: Matrices, shapes: bool = True):
         rigid = np.flatnonzero(np.abs(values) <= RIGID_TOLERANCE * scale)
         keep[rigid] = False
         keep[rigid[: len(rigid) // 2]] = True
-        values = np.where(np.isin(np.arange(len(values)), rigid), 0j, values)
+        values = values.copy()
+        values[rigid] = 0.0
         eig = np.where(real, values.real + 0j, values)[keep]
         vectors = right[: matrices.n, keep] if right is not None else None
         index = _match_undamped(vectors, phi, matrices) if vectors is not None else np.zeros(len(eig), int)

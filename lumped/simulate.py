@@ -408,7 +408,7 @@ class Prepared:
     inputs: _Inputs
     model: tuple  # the kernels' model tuple without its work array (see lumped.kernels)
     lanes: Lanes | None = None  # small linear systems: explicit RK steps as affine maps
-    maps: dict = field(default_factory=dict, compare=False, repr=False)  # their maps, by (stepper, step)
+    maps: dict = field(default_factory=dict, compare=False, repr=False)  # their maps, by (tableau, step)
 
 
 @_plain_pages()
@@ -774,20 +774,20 @@ class _Engine:
             lane, tables, scratch = work[h]
             input_table(lanes.program, clock, start, count, h, *tables)
             put_rows(lane, np.concatenate([self.q.reshape(lanes.count, n).T, self.v.reshape(lanes.count, n).T]))
-            start_lane, start_energy = lane.copy(), self.energy.copy()
+            if lanes.count == 1:
+                status, done, samples = one(maps.step, maps.sample, lane, self.energy, start, count, *tables,
+                                            *self._output_buffers(), self.q_limit)  # fmt: skip
+            else:
+                start_lane, start_energy = lane.copy(), self.energy.copy()
 
-            def chunk(steps):
-                if lanes.count == 1:
-                    return one(maps.step, maps.sample, lane, self.energy, start, steps, *tables,
-                               *self._output_buffers(), self.q_limit)  # fmt: skip
-                return many(maps.step, maps.sample, lane, scratch[0], self.energy, start, steps, *tables, *scratch[1:],
-                            *self._output_buffers(), self.q_limit)  # fmt: skip
+                def chunk(steps):
+                    return many(maps.step, maps.sample, lane, scratch[0], self.energy, start, steps, *tables,
+                                *scratch[1:], *self._output_buffers(), self.q_limit)  # fmt: skip
 
-            status, done, samples = chunk(count)
-            if status != kernels.OK and lanes.count > 1:  # every lane again, to the step where one diverged
-                lane[:], self.energy[:] = start_lane, start_energy
-                _, done, samples = chunk(done)
-            status = kernels.DIVERGED if status != kernels.OK else status
+                status, done, samples = chunk(count)
+                if status != kernels.OK:  # every lane again, to the step where one diverged
+                    lane[:], self.energy[:] = start_lane, start_energy
+                    _, done, samples = chunk(done)
             self.count = samples
             z = unblocked(lane, 2 * n, lanes.count)
             self.q, self.v = z[:n].T.ravel(), z[n:].T.ravel()

@@ -51,7 +51,8 @@ def _compile_kernels() -> None:
     system = lumped.load(lumped.demo_path("quarter_car"))
     for stepper in ("rk4", "newmark"):
         run = simulate(system, stepper, 2e-4, 0.01)
-        lumped.run_figures(system, run)
+        assert run.status == "completed", f"{stepper} on the demo the browser tests run: {run.message}"
+        assert lumped.run_figures(system, run), "no figures for the demo run"
 
 
 @pytest.fixture(scope="session")
