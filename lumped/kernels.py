@@ -186,13 +186,30 @@ def body_accelerations(q, v, U, Ud, Udd, FF, col, model, acc, rates):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
+def _element_values(e, d, dv, dacc, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf):
+    """Total force (N, static included, tension positive) and stored energy (J;
+    inerters: ½ b δ'²) of element e at deflection d from static (m), its rate dv and
+    second rate dacc."""
+    kd = kind[e]
+    if kd == SPRING:
+        return fs[e] + _spring_force(d, k[e], fs[e], acts[e], gap[e], gk[e]), _spring_energy(d, k[e], fs[e], acts[e], gap[e], gk[e])
+    if kd == DAMPER:
+        return c[e] * dv, 0.0
+    if kd == ASYMMETRIC_DAMPER:
+        return (c[e] * dv if dv > 0.0 else c2[e] * dv), 0.0
+    if kd == CURVE_DAMPER:
+        return _curve_force(dv, coff[e], coff[e + 1], cv, cf), 0.0
+    return k[e] * dacc, 0.5 * k[e] * dv * dv
+
+
+@njit(cache=True, inline="always", error_model="numpy")
 def element_state(
     q, v, a, u, ud, udd,
     ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
     deflection, force, energy,
 ):  # fmt: skip
-    """Per element at one instant: deflection from static (m), total force (N, static
-    included, tension positive) and stored energy (J; inerters: ½ b δ'²)."""
+    """Per element at one instant: deflection from static (m), total force and stored
+    energy (:func:`_element_values`)."""
     n = q.shape[0]
     for e in range(ea.shape[0]):
         i = ea[e]
@@ -203,51 +220,36 @@ def element_state(
         vb = v[j] if j < n else ud[j - n]
         aa = a[i] if i < n else udd[i - n]
         ab = a[j] if j < n else udd[j - n]
-        d = xb - xa
-        dv = vb - va
-        kd = kind[e]
-        deflection[e] = d
-        if kd == SPRING:
-            f = _spring_force(d, k[e], fs[e], acts[e], gap[e], gk[e])
-            energy[e] = _spring_energy(d, k[e], fs[e], acts[e], gap[e], gk[e])
-            force[e] = fs[e] + f
-        elif kd == DAMPER:
-            force[e] = c[e] * dv
-            energy[e] = 0.0
-        elif kd == ASYMMETRIC_DAMPER:
-            force[e] = c[e] * dv if dv > 0.0 else c2[e] * dv
-            energy[e] = 0.0
-        elif kd == CURVE_DAMPER:
-            force[e] = _curve_force(dv, coff[e], coff[e + 1], cv, cf)
-            energy[e] = 0.0
-        else:
-            force[e] = k[e] * (ab - aa)
-            energy[e] = 0.5 * k[e] * dv * dv
+        deflection[e] = xb - xa
+        force[e], energy[e] = _element_values(e, xb - xa, vb - va, ab - aa, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf)
 
 
 @njit(**HOT)
 def element_series(
     q, v, a, u, ud, udd,
     ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
-    deflection, force, stored, inerter_energy, energy,
+    deflection, force, stored, inerter_energy,
 ):  # fmt: skip
-    """:func:`element_state` over samples (rows of q, v, a, u, ud, udd): fills
-    ``deflection`` and ``force`` (samples × elements), and per sample the springs'
-    stored energy and the inerters' kinetic energy (J); ``energy`` is work space of
-    one float per element."""
+    """:func:`element_state` over samples (rows of q, v, a, u, ud, udd), element by
+    element: fills ``deflection`` and ``force`` (samples × elements), and per sample
+    the springs' stored energy and the inerters' kinetic energy (J)."""
     mode = flush_subnormals()
+    n = q.shape[1]
     for i in range(q.shape[0]):
-        element_state(q[i], v[i], a[i], u[i], ud[i], udd[i], ea, eb, kind, k, c, c2, fs, acts,
-                      gap, gk, coff, cv, cf, deflection[i], force[i], energy)  # fmt: skip
-        s_spring = 0.0
-        s_inerter = 0.0
-        for e in range(ea.shape[0]):
-            if kind[e] == SPRING:
-                s_spring += energy[e]
-            elif kind[e] == INERTER:
-                s_inerter += energy[e]
-        stored[i] = s_spring
-        inerter_energy[i] = s_inerter
+        stored[i] = 0.0
+        inerter_energy[i] = 0.0
+    for e in range(ea.shape[0]):
+        ia, ib = ea[e], eb[e]
+        # An end on a body reads its column of q, v, a; on a support, of u, u', u''.
+        qa, va, aa, ca = (q, v, a, ia) if ia < n else (u, ud, udd, ia - n)
+        qb, vb, ab, cb = (q, v, a, ib) if ib < n else (u, ud, udd, ib - n)
+        into = stored if kind[e] == SPRING else inerter_energy
+        for i in range(q.shape[0]):
+            d = qb[i, cb] - qa[i, ca]
+            deflection[i, e] = d
+            force[i, e], energy = _element_values(e, d, vb[i, cb] - va[i, ca], ab[i, cb] - aa[i, ca], kind, k, c, c2,
+                                                  fs, acts, gap, gk, coff, cv, cf)  # fmt: skip
+            into[i] += energy
     restore_float_mode(mode)
 
 

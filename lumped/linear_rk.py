@@ -14,8 +14,10 @@ element loop.
 A, B and the rate forms are read off the engine's own element loop
 (:func:`lumped.kernels.body_accelerations`) by probing it with unit vectors, so the
 physics stays written once; a probe at a random point checks that the system is
-linear before this path is taken. The kernel accumulates the outer products of x
-and turns them into energy only at output samples.
+linear before this path is taken. For one system the kernel steps a chunk first,
+keeping each step's start, then takes every step's energy xᵀQx in a loop whose
+steps are independent (the compiler vectorises it); for many lanes it accumulates
+the outer products of x and turns them into energy only at output samples.
 
 Lanes: variants laid side by side (:mod:`lumped.variants`) form a block-diagonal
 system whose blocks share their structure and the inputs. Each block is a lane
@@ -29,6 +31,7 @@ from __future__ import annotations
 import functools
 import hashlib
 import importlib.util
+import math
 import os
 import sys
 import tempfile
@@ -39,9 +42,9 @@ import numpy as np
 from numba import njit
 
 from lumped.kernels import body_accelerations, stage_time
-from lumped.signal_kernels import HOT, force_value, support_motion
+from lumped.signal_kernels import HOT, force_value, signal_span, support_motion
 
-__all__ = ["Lanes", "lanes_of", "RKMaps", "rk_maps", "input_table", "chunk_kernels", "is_compiled", "SPECIALISE_STEPS", "AFFINE_RK_LIMIT", "LANE_BLOCK"]
+__all__ = ["Lanes", "lanes_of", "RKMaps", "rk_maps", "input_slots", "input_rows", "chunk_kernels", "is_compiled", "SPECIALISE_STEPS", "AFFINE_RK_LIMIT", "LANE_BLOCK"]
 
 #: Bodies per lane up to which explicit Runge–Kutta runs of linear systems take the
 #: affine map (its cost grows as the square of the state; the element loop's as
@@ -303,37 +306,76 @@ def put_rows(flat: np.ndarray, rows: np.ndarray) -> None:
     grid[:, : rows.shape[0], :] = _grid(blocked(rows), rows.shape[1])
 
 
+def input_slots(inputs: tuple[tuple[int, int, int], ...], columns: int, supports: int, forces: int) -> np.ndarray:
+    """Where :func:`input_rows` writes each input: (stage-time rows × [u, u', u'' of
+    every support, then every force item]) → row of W, −1 for inputs no lane reads."""
+    slots = np.full((columns, 3 * supports + forces), -1, dtype=np.int64)
+    for b, (row, kind, item) in enumerate(inputs):
+        slots[row, kind * supports + item] = b
+    return slots
+
+
 @njit(**HOT)
-def input_table(program, clock, k0, nsteps, h, U, Ud, Udd, FF):
-    """The inputs of steps k0 … k0+nsteps−1 at their stage times: row j of U, Ud, Udd
-    (steps × stage times × supports) and FF (× force items), as
-    :func:`lumped.kernels._step_inputs` reads them, one input at a time (a tight loop
-    over the steps for each)."""
-    for c in range(U.shape[1]):
-        for s in range(U.shape[2]):
-            for j in range(nsteps):
-                U[j, c, s], Ud[j, c, s], Udd[j, c, s] = support_motion(stage_time(clock, k0 + j, h, c), program, s)
-        for f in range(FF.shape[2]):
-            for j in range(nsteps):
-                FF[j, c, f] = force_value(stage_time(clock, k0 + j, h, c), program, f)
+def input_rows(program, clock, k0, nsteps, h, slots, W):
+    """The inputs that the maps read (:attr:`RKMaps.inputs`) of steps k0 … k0+nsteps−1
+    at their stage times, as :func:`lumped.kernels._step_inputs` reads them: W[b, j]
+    is input b of step k0 + j (``slots`` from :func:`input_slots`). One input at a time,
+    in a tight loop over the steps; a support's signal is evaluated only over the
+    steps its span (:func:`lumped.signal_kernels.signal_span`) may reach, with a step
+    to spare on either side, and is zero elsewhere."""
+    kind, p, lo, hi, data, support_signal, support_delay, force_signal = program
+    ns = support_signal.shape[0]
+    base, grid, offsets = clock
+    for c in range(slots.shape[0]):
+        for s in range(ns):
+            bu, bd, ba = slots[c, s], slots[c, ns + s], slots[c, 2 * ns + s]
+            g = support_signal[s]
+            first, end = 0, 0
+            if g >= 0 and grid > 0.0:
+                on, off = signal_span(kind[g], p, g)
+                start = base + offsets[c] * h - support_delay[s]  # step k reads its signal at start + k·grid
+                first = min(max(int(math.floor((on - start) / grid)) - 1 - k0, 0), nsteps)
+                end = nsteps if off == math.inf else min(max(int(math.ceil((off - start) / grid)) + 2 - k0, first), nsteps)
+            elif g >= 0:
+                end = nsteps
+            for b in (bu, bd, ba):
+                if b >= 0:
+                    W[b, :first] = 0.0
+                    W[b, end:nsteps] = 0.0
+            if bu < 0 and bd < 0 and ba < 0:
+                continue
+            for j in range(first, end):
+                u, ud, udd = support_motion(stage_time(clock, k0 + j, h, c), program, s)
+                if bu >= 0:
+                    W[bu, j] = u
+                if bd >= 0:
+                    W[bd, j] = ud
+                if ba >= 0:
+                    W[ba, j] = udd
+        for f in range(force_signal.shape[0]):
+            b = slots[c, 3 * ns + f]
+            if b >= 0:
+                for j in range(nsteps):
+                    W[b, j] = force_value(stage_time(clock, k0 + j, h, c), program, f)
 
 
-def affine_rk_work(maps: RKMaps, lanes: Lanes, columns: int, steps: int, every: int) -> tuple:
+def affine_rk_work(maps: RKMaps, lanes: Lanes, steps: int, every: int) -> tuple:
     """Work arrays of the chunk kernels, for chunks of up to ``steps`` steps with a
-    sample every ``every`` steps: the :func:`blocked` lane state z, the input tables
-    of :func:`input_table`, and the scratch of the many-lane kernel (the blocked sums
-    of z_a z_b and z_a w_b over a chunk, the inputs' products at samples and at the
+    sample every ``every`` steps: the :func:`blocked` lane state z, the inputs W of
+    :func:`input_rows`, and the scratch of the kernel (one lane: the states at the
+    steps' starts and the steps' energy increments; many lanes: the blocked sums of
+    z_a z_b and z_a w_b over a chunk, the inputs' products at samples and at the
     chunk's end; see :func:`chunk_kernels`)."""
     nz, kept = 2 * lanes.n, len(maps.inputs)
-    ns, nf = len(lanes.program[5]), len(lanes.program[7])
     lane = blocked(np.zeros((nz, lanes.count)))
+    inputs = np.zeros((kept, steps))
+    if lanes.count == 1:
+        return lane, inputs, (np.zeros((nz, steps + 1)), np.zeros((3, steps)))
     blocks = -(-lanes.count // LANE_BLOCK)
-    tables = (np.empty((steps, columns, ns)), np.empty((steps, columns, ns)), np.empty((steps, columns, ns)),
-              np.empty((steps, columns, nf)))  # fmt: skip
     pairs = kept * (kept + 1) // 2
     scratch = (np.zeros(blocks * (nz * (nz + 1) // 2 + nz * kept) * LANE_BLOCK), np.empty((steps // every + 1, pairs)),
                np.empty(pairs))  # fmt: skip
-    return lane, tables, scratch
+    return lane, inputs, scratch
 
 
 def chunk_kernels(nz: int, inputs: tuple[tuple[int, int, int], ...], rates: tuple[int, ...]):
@@ -342,23 +384,28 @@ def chunk_kernels(nz: int, inputs: tuple[tuple[int, int, int], ...], rates: tupl
     Python with every sum written out at constant offsets, compiled by numba on first
     use and cached on disk (:func:`_generated_module`). Signatures::
 
-        one(step, sample, lane, energy, k0, nsteps, U, Ud, Udd, FF,
+        one(step, sample, lane, energy, k0, nsteps, W, H, inc,
             out_every, out_q, out_v, out_a, out_e, out_step, n_out, q_limit)
-        lanes(step, sample, lane, sums, energy, k0, nsteps, U, Ud, Udd, FF, snap,
+        lanes(step, sample, lane, sums, energy, k0, nsteps, W, snap, total,
               out_every, out_q, out_v, out_a, out_e, out_step, n_out, q_limit)
             -> (status, steps done, samples written)
 
     Both advance the lanes (the :func:`blocked` state ``lane``) ``nsteps`` steps from
-    global step k0, reading the tables of :func:`input_table`. Samples are written
+    global step k0, reading the inputs W of :func:`input_rows`. Samples are written
     after each step whose global index is a multiple of ``out_every``, lane i's bodies
     at columns i·n … i·n + n − 1; ``energy`` (3) gains the energy of every lane.
-    ``one`` runs a single lane with its maps, state and sums in local variables. For
-    many lanes, ``lanes`` takes the inputs' products once per step, then runs the
-    chunk block by block (:data:`LANE_BLOCK` lanes, the lane index innermost, which
-    the compiler vectorises), the sums in ``sums``. A lane beyond ``q_limit`` (or not
-    a number) stops its block and limits the blocks after it: the caller runs the
-    chunk again from its start to the returned step count, so that every lane ends at
-    the same step.
+
+    ``one`` runs a single lane in three passes over the chunk: the steps, with the
+    maps and the state in local variables, keeping each step's start state in ``H``
+    (nz × steps + 1); each step's energy increment xᵀQx into ``inc`` (3 × steps),
+    a loop whose steps are independent, so the compiler vectorises it; then the
+    samples and the running energy. For many lanes, ``lanes`` takes the inputs'
+    products once per step, then runs the chunk block by block (:data:`LANE_BLOCK`
+    lanes, the lane index innermost, which the compiler vectorises), the sums in
+    ``sums``. A lane beyond ``q_limit`` (or not a number) stops the run at that step:
+    ``one`` stops there (the step is not sampled); ``lanes`` stops its block and limits
+    the blocks after it, and the caller runs the chunk again from its start to the
+    returned step count, so that every lane ends at the same step.
     """
     key = (nz, inputs, rates)
     if key not in _KERNELS:
@@ -397,7 +444,6 @@ _KERNELS: dict = {}
 def _kernel_source(nz: int, inputs, rates) -> str:
     n, kept = nz // 2, len(inputs)
     block = LANE_BLOCK
-    table = ("U", "Ud", "Udd", "FF")
     pairs_z = [(a, b) for a in range(nz) for b in range(a, nz)]
     pairs_w = [(a, b) for a in range(kept) for b in range(a, kept)]
     # Rows of the maps (see RKMaps) and of the sums (z_a z_b, a ≤ b, then z_a w_b).
@@ -422,12 +468,15 @@ def _kernel_source(nz: int, inputs, rates) -> str:
     def first_lane(name):
         return lambda row: f"{name}[{row * block}]"
 
-    def step_lines(coefficient, sum_of, state):
-        """Add the step's start (z, w) to the sums, step z, check it: ``coefficient``,
-        ``sum_of`` and ``state`` name the step map's rows, the sums and z_r."""
-        return (
+    def step_lines(coefficient, state, sum_of=None):
+        """Step z and check it (adding the step's start (z, w) to the sums first when
+        ``sum_of`` is given): ``coefficient``, ``state`` and ``sum_of`` name the step
+        map's rows, z_r and the sums."""
+        sums = [] if sum_of is None else (
             [f"{sum_of(t)} += z{a} * z{b}" for t, (a, b) in enumerate(pairs_z)]
-            + [f"{sum_of(len(pairs_z) + a * kept + b)} += z{a} * w{b}" for a in range(nz) for b in range(kept)]
+            + [f"{sum_of(len(pairs_z) + a * kept + b)} += z{a} * w{b}" for a in range(nz) for b in range(kept)])  # fmt: skip
+        return (
+            sums
             + [f"y{r} = ({total([f'{coefficient(r * nz + a)} * z{a}' for a in range(nz)])}) + "
                f"({total([f'{coefficient(pw_row + r * kept + b)} * w{b}' for b in range(kept)])})" for r in range(nz)]
             + [f"{state(r)} = y{r}" for r in range(nz)]
@@ -443,33 +492,45 @@ def _kernel_source(nz: int, inputs, rates) -> str:
                f"({total([f'{coefficient(aw_row + r * kept + b)} * w{b}' for b in range(kept)])})" for r in range(n)]
         )  # fmt: skip
 
-    def energies(coefficient, sum_of, target):
-        """Each rate's energy gained since the chunk's start, added to ``target(p)``."""
+    def energies(coefficient, sum_of, target, op="+="):
+        """Each rate's energy, Σ coefficient × sum (z_a z_b and z_a w_b by ``sum_of``,
+        w_a w_b as r…), added to (``op`` "=": put in) ``target(p)``."""
         out = []
         for p in rates:
             terms = ([f"{coefficient(zz_first + p * len(pairs_z) + t)} * {sum_of(t)}" for t in range(len(pairs_z))]
                      + [f"{coefficient(zw_first + p * nz * kept + c)} * {sum_of(len(pairs_z) + c)}"
                         for c in range(nz * kept)]
                      + [f"{coefficient(ww_first + p * len(pairs_w) + t)} * r{t}" for t in range(len(pairs_w))])  # fmt: skip
-            out.append(f"{target(p)} += {total(terms)}")
+            out.append(f"{target(p)} {op} {total(terms)}")
         return out
 
-    w_loads = [f"w{k} = {table[kind]}[j, {row}, {item}]" for k, (row, kind, item) in enumerate(inputs)]
+    w_loads = [f"w{b} = W[{b}, j]" for b in range(kept)]
     products = [f"r{t} += w{a} * w{b}" for t, (a, b) in enumerate(pairs_w)]
 
-    # One lane: maps, state and sums in local variables (c…, z…, a…; r… the products).
-    def local_sum(t):
+    # One lane: maps and state in local variables (c…, z…); then each step's energy
+    # from the products of its start (a… of z, r… of w), then the samples.
+    def product(t):
         return f"a{nz + t}"
 
-    setup = ([f"c{r} = step[{r * block}]" for r in range(step_rows)]
-             + [f"z{a} = lane[{a * block}]" for a in range(nz)]
-             + [f"{local_sum(t)} = 0.0" for t in range(len(pairs_z) + nz * kept)]
-             + [f"r{t} = 0.0" for t in range(len(pairs_w))])  # fmt: skip
-    body = [*w_loads, *products, "fine = True", *step_lines(lambda r: f"c{r}", local_sum, lambda r: f"z{r}")]
-    sample = (sample_lines(first_lane("sample"), "") + [f"out_e[m, {p}] = energy[{p}]" for p in range(3)]
-              + energies(first_lane("sample"), local_sum, lambda p: f"out_e[m, {p}]"))  # fmt: skip
-    store = [f"lane[{a * block}] = z{a}" for a in range(nz)] + energies(first_lane("sample"), local_sum,
-                                                                       lambda p: f"energy[{p}]")  # fmt: skip
+    setup = [f"c{r} = step[{r * block}]" for r in range(step_rows)] + [f"z{a} = lane[{a * block}]" for a in range(nz)]
+    history = [f"H[{a}, j] = z{a}" for a in range(nz)]
+    body = [*history, *w_loads, "fine = True", *step_lines(lambda r: f"c{r}", lambda r: f"z{r}")]
+    store = [f"H[{a}, limit] = z{a}" for a in range(nz)] + [f"lane[{a * block}] = z{a}" for a in range(nz)]
+    coefficients = {}
+
+    def energy_coefficient(row):
+        return coefficients.setdefault(row, f"g{len(coefficients)}")
+
+    increments = energies(energy_coefficient, product, lambda p: f"inc[{p}, j]", op="=")
+    step_energy = (
+        [f"z{a} = H[{a}, j]" for a in range(nz)] + w_loads
+        + [f"{product(t)} = z{a} * z{b}" for t, (a, b) in enumerate(pairs_z)]
+        + [f"{product(len(pairs_z) + a * kept + b)} = z{a} * w{b}" for a in range(nz) for b in range(kept)]
+        + [f"r{t} = w{a} * w{b}" for t, (a, b) in enumerate(pairs_w)] + increments
+    )  # fmt: skip
+    energy_setup = [f"{name} = sample[{row * block}]" for row, name in coefficients.items()]
+    sample = ([f"z{a} = H[{a}, j + 1]" for a in range(nz)] + w_loads + sample_lines(first_lane("sample"), "")
+              + [f"out_e[m, {p}] = e{p}" for p in range(3)])  # fmt: skip
 
     # Many lanes: a block's lanes in the innermost loop, the sums in ``sums``.
     def lane_sum(t):
@@ -481,7 +542,7 @@ def _kernel_source(nz: int, inputs, rates) -> str:
     lane_energies = energies(lane_sample, lane_sum, lambda p: f"e{p}") or ["pass"]
     lanes_body = [*w_loads, "fine = True", f"for i in range({block}):",
                   *("    " + x for x in [f"z{a} = {at('lane', 'lb', a)}" for a in range(nz)]
-                    + step_lines(lambda r: at("step", "sb", r), lane_sum, lambda r: at("lane", "lb", r)))]  # fmt: skip
+                    + step_lines(lambda r: at("step", "sb", r), lambda r: at("lane", "lb", r), lane_sum))]  # fmt: skip
     lanes_sample = (
         [f"r{t} = snap[m - n_out, {t}]" for t in range(len(pairs_w))] + ["e0 = 0.0", "e1 = 0.0", "e2 = 0.0"]
         + [f"for i in range({block}):  # padding lanes add zeros", *("    " + x for x in lane_energies)]
@@ -493,8 +554,10 @@ def _kernel_source(nz: int, inputs, rates) -> str:
     return _TEMPLATE.format(
         nz=nz, kept=kept, block=block, n=n, sum_rows=(len(pairs_z) + nz * kept) * block,
         step_rows=step_rows * block, sample_rows=(ww_first + 3 * len(pairs_w)) * block,
-        setup=lines(setup, 4), store=lines(store, 4),
-        one_loop=_step_loop(4, "nsteps", body, sample), lanes_loop=_step_loop(8, "limit", lanes_body, lanes_sample),
+        setup=lines(setup, 4), one_body=lines(body, 8), store=lines(store, 4),
+        energy_setup=lines(energy_setup, 8), step_energy=lines(step_energy, 12),
+        rated=bool(rates), running=lines([f"e{p} += inc[{p}, j]" for p in rates], 8), sample=lines(sample, 16),
+        lanes_loop=_step_loop(8, "limit", lanes_body, lanes_sample),
         r_init=lines([f"r{t} = 0.0" for t in range(len(pairs_w))], 4),
         w_loads_1=lines(w_loads, 8),
         products=lines(products, 8),
@@ -527,23 +590,50 @@ from lumped.linear_rk import REORDERED
 
 
 @njit(**REORDERED)
-def one(step, sample, lane, energy, k0, nsteps, U, Ud, Udd, FF,
+def one(step, sample, lane, energy, k0, nsteps, W, H, inc,
         out_every, out_q, out_v, out_a, out_e, out_step, n_out, q_limit):
     mode = flush_subnormals()
     capacity = out_q.shape[0]
 {setup}
     status = 0
     limit = nsteps
+    for j in range(nsteps):
+{one_body}
+        if not fine:
+            status = 1
+            limit = j + 1
+            break
+{store}
+    if {rated}:
+{energy_setup}
+        for j in range(limit):
+{step_energy}
+    e0 = energy[0]
+    e1 = energy[1]
+    e2 = energy[2]
+    last = limit - 1 if status else limit  # the step that diverged is not sampled
     m = n_out
     until = out_every - k0 % out_every
-{one_loop}
-{store}
+    for j in range(limit):
+{running}
+        if j == last:
+            break
+        until -= 1
+        if until == 0:
+            until = out_every
+            if m < capacity:
+{sample}
+                out_step[m] = k0 + j + 1
+                m += 1
+    energy[0] = e0
+    energy[1] = e1
+    energy[2] = e2
     restore_float_mode(mode)
     return status, limit, m
 
 
 @njit(**REORDERED)
-def lanes(step, sample, lane, sums, energy, k0, nsteps, U, Ud, Udd, FF, snap, total,
+def lanes(step, sample, lane, sums, energy, k0, nsteps, W, snap, total,
           out_every, out_q, out_v, out_a, out_e, out_step, n_out, q_limit):
     mode = flush_subnormals()
     blocks = lane.shape[0] // {block} // {nz}

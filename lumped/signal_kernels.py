@@ -23,7 +23,7 @@ from numba import njit
 
 __all__ = [
     "FIXED", "STEP", "BUMP", "HARMONIC", "SWEEP", "TABLE", "ROAD", "PARAMETERS",
-    "signal_motion", "signal_series", "support_motion", "force_value", "input_values", "input_series",
+    "signal_motion", "signal_span", "signal_series", "support_motion", "force_value", "input_values", "input_series",
     "sweep_phase",
 ]  # fmt: skip
 
@@ -144,6 +144,22 @@ def signal_motion(kind, p, g, data, lo, hi, t):
     if kind == TABLE:
         return _table(data, lo, hi, t)
     return _road(p, g, data, lo, hi, t)
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def signal_span(kind, p, g):
+    """Times (s) outside of which :func:`signal_motion` of signal ``p[g]`` is exactly
+    zero, value and rates: a bump's passage, a sweep's duration, a step from its time
+    on; every signal is zero before t = 0."""
+    if kind == FIXED:
+        return 0.0, 0.0
+    if kind == STEP:
+        return max(p[g, 1], 0.0), math.inf
+    if kind == BUMP:
+        return max(p[g, 3], 0.0), p[g, 3] + p[g, 1] / p[g, 2]
+    if kind == SWEEP:
+        return 0.0, p[g, 3]
+    return 0.0, math.inf
 
 
 @njit(**HOT)

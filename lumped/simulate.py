@@ -31,11 +31,13 @@ from lumped.errors import LumpedError
 from lumped.excitation import Signal, signal_for
 from lumped.kernels import LEFT_LIMIT
 from lumped.linear_rk import (
+    LANE_BLOCK,
     SPECIALISE_STEPS,
     Lanes,
     affine_rk_work,
     chunk_kernels,
-    input_table,
+    input_rows,
+    input_slots,
     is_compiled,
     lanes_of,
     put_rows,
@@ -770,27 +772,31 @@ class _Engine:
             except RuntimeError as exc:  # no place to write the generated kernel
                 raise RunError(str(exc)) from None
             if h not in work:
-                work[h] = affine_rk_work(maps, lanes, columns, min(CHUNK_STEPS, self.steps), self.every)
-            lane, tables, scratch = work[h]
-            input_table(lanes.program, clock, start, count, h, *tables)
-            put_rows(lane, np.concatenate([self.q.reshape(lanes.count, n).T, self.v.reshape(lanes.count, n).T]))
+                slots = input_slots(maps.inputs, columns, len(lanes.program[5]), len(lanes.program[7]))
+                work[h] = slots, *affine_rk_work(maps, lanes, min(CHUNK_STEPS, self.steps), self.every)
+            slots, lane, inputs, scratch = work[h]
+            input_rows(lanes.program, clock, start, count, h, slots, inputs)
             if lanes.count == 1:
-                status, done, samples = one(maps.step, maps.sample, lane, self.energy, start, count, *tables,
+                lane[: 2 * n * LANE_BLOCK : LANE_BLOCK] = np.concatenate([self.q, self.v])
+                status, done, samples = one(maps.step, maps.sample, lane, self.energy, start, count, inputs, *scratch,
                                             *self._output_buffers(), self.q_limit)  # fmt: skip
+                z = lane[: 2 * n * LANE_BLOCK : LANE_BLOCK]
+                self.q, self.v = z[:n].copy(), z[n:].copy()
             else:
+                put_rows(lane, np.concatenate([self.q.reshape(lanes.count, n).T, self.v.reshape(lanes.count, n).T]))
                 start_lane, start_energy = lane.copy(), self.energy.copy()
 
                 def chunk(steps):
-                    return many(maps.step, maps.sample, lane, scratch[0], self.energy, start, steps, *tables,
+                    return many(maps.step, maps.sample, lane, scratch[0], self.energy, start, steps, inputs,
                                 *scratch[1:], *self._output_buffers(), self.q_limit)  # fmt: skip
 
                 status, done, samples = chunk(count)
                 if status != kernels.OK:  # every lane again, to the step where one diverged
                     lane[:], self.energy[:] = start_lane, start_energy
                     _, done, samples = chunk(done)
+                z = unblocked(lane, 2 * n, lanes.count)
+                self.q, self.v = z[:n].T.ravel(), z[n:].T.ravel()
             self.count = samples
-            z = unblocked(lane, 2 * n, lanes.count)
-            self.q, self.v = z[:n].T.ravel(), z[n:].T.ravel()
             return status, done
 
         return kernel
@@ -1007,13 +1013,13 @@ class _Engine:
         q, v, a = self.out_q[:count], self.out_v[:count], self.out_a[:count]
         u, ud, udd, F = self.inputs.at(time)
         ne = len(self.m.element_ids)
-        deflection = np.zeros((count, ne))
-        force = np.zeros((count, ne))
-        stored = np.zeros(count)
-        inerter_energy = np.zeros(count)
-        kernels.element_series(q, v, a, u, ud, udd, *self.table.args(), deflection, force, stored,
-                               inerter_energy, np.zeros(ne))  # fmt: skip
-        kinetic = 0.5 * np.einsum("ij,j,ij->i", v, self.m.mass, v) + inerter_energy
+        deflection = np.empty((count, ne))
+        force = np.empty((count, ne))
+        stored = np.empty(count)
+        inerter_energy = np.empty(count)
+        ends = (np.ascontiguousarray(x) for x in (q, v, a, u, ud, udd))  # one layout for the compiled loop
+        kernels.element_series(*ends, *self.table.args(), deflection, force, stored, inerter_energy)
+        kinetic = 0.5 * ((v * v) @ self.m.mass) + inerter_energy
         events = self._events()
         return RunResult(
             system_name=self.system.name,

@@ -132,3 +132,47 @@ def test_nonlinear_and_larger_systems_keep_the_element_loop():
                  for i in range(AFFINE_RK_LIMIT + 1)},
     )  # fmt: skip
     assert prepare(chain).lanes is None
+
+
+@pytest.mark.parametrize(
+    "signal",
+    [
+        lumped.BumpInput("sig", 0.05, 0.9, 5.0, time=0.2),
+        lumped.StepInput("sig", 0.02, time=0.31),
+        lumped.SweepInput("sig", 0.01, 1.0, 12.0, duration=0.4),
+        lumped.HarmonicInput("sig", 0.01, 3.0, 0.4),
+        lumped.TableInput("sig", "sig.csv", (0.0, 0.1, 0.35, 0.6), (0.0, 0.01, -0.02, 0.0)),
+        lumped.RoadInput("sig", "C", 20.0, seed=3),
+    ],
+    ids=lambda s: s.kind,
+)
+def test_chunk_inputs_are_the_signals_at_every_stage_time(signal):
+    # Each row of a chunk's inputs is the signal itself (lumped.excitation evaluates it
+    # on its own, array by array) at the stage time k·h + c·h, read LEFT_LIMIT·h early
+    # past a step's start, delayed per support — also where input_rows writes zeros
+    # without evaluating the signal (outside a bump's passage, a sweep, before a step).
+    from lumped.excitation import signal_for
+    from lumped.kernels import LEFT_LIMIT
+    from lumped.linear_rk import input_rows, input_slots
+
+    system = lumped.System(
+        name="two supports (invented)",
+        bodies={"b": lumped.Body("b", 3.0)},
+        supports={"front": lumped.Support("front", "sig"), "rear": lumped.Support("rear", "sig", delay=0.13)},
+        springs={"kf": lumped.Spring("kf", ("front", "b"), 900.0), "kr": lumped.Spring("kr", ("rear", "b"), 900.0)},
+        inputs={"sig": signal},
+    )
+    program = prepare(system).inputs.program
+    h, steps, offsets = 1e-3, 250, np.array([0.0, 0.5, 1.0])
+    inputs = tuple((c, kind, s) for c in range(3) for kind in (0, 1, 2) for s in range(2))
+    slots = input_slots(inputs, len(offsets), 2, 0)
+    source, delays = signal_for(system, "sig"), (0.0, 0.13)
+    for k0 in (0, 180, 260, 420, 5000):
+        rows = np.full((len(inputs), steps), np.nan)
+        input_rows(program, (0.0, h, offsets), k0, steps, h, slots, rows)
+        for b, (c, kind, s) in enumerate(inputs):
+            t = 0.0 + (k0 + np.arange(steps)) * h + offsets[c] * h
+            if offsets[c] > 0:
+                t = t - LEFT_LIMIT * h
+            expected = (source.value, source.rate, source.rate2)[kind](t - delays[s])
+            np.testing.assert_array_equal(rows[b], expected, err_msg=f"k0 {k0}, row {c}, kind {kind}, support {s}")

@@ -57,6 +57,7 @@ class ButcherTableau:
     c: tuple[Fraction, ...]
     numerator: tuple[float, ...] = field(init=False, repr=False)
     denominator: tuple[float, ...] = field(init=False, repr=False)
+    floats: tuple = field(init=False, repr=False, compare=False)  # a, b, c as floats
 
     def __post_init__(self):
         a, b, c = _exact(self.a), tuple(Fraction(x) for x in self.b), tuple(Fraction(x) for x in self.c)
@@ -71,6 +72,8 @@ class ButcherTableau:
         object.__setattr__(self, "a", a)
         object.__setattr__(self, "b", b)
         object.__setattr__(self, "c", c)
+        object.__setattr__(self, "floats", (tuple(tuple(float(x) for x in row) for row in a),
+                                            tuple(float(x) for x in b), tuple(float(x) for x in c)))  # fmt: skip
         A = [list(row) for row in a]
         shifted = [[A[i][j] - b[j] for j in range(s)] for i in range(s)]  # A − 𝟙bᵀ
         object.__setattr__(self, "numerator", tuple(float(x) for x in _det_polynomial(shifted)))
@@ -86,11 +89,8 @@ class ButcherTableau:
 
     def arrays(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """``a``, ``b``, ``c`` as float arrays, for the stepping kernels."""
-        return (
-            np.array([[float(x) for x in row] for row in self.a]),
-            np.array([float(x) for x in self.b]),
-            np.array([float(x) for x in self.c]),
-        )
+        a, b, c = self.floats
+        return np.array(a), np.array(b), np.array(c)
 
     def stability_function(self, z):
         """R(z) for complex ``z`` (array-like)."""
