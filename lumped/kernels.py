@@ -190,16 +190,21 @@ def _element_values(e, d, dv, dacc, kind, k, c, c2, fs, acts, gap, gk, coff, cv,
     """Total force (N, static included, tension positive) and stored energy (J;
     inerters: ½ b δ'²) of element e at deflection d from static (m), its rate dv and
     second rate dacc."""
-    kd = kind[e]
+    return _values_of(kind[e], d, dv, dacc, k[e], c[e], c2[e], fs[e], acts[e], gap[e], gk[e], coff[e], coff[e + 1], cv, cf)
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _values_of(kd, d, dv, dacc, k, c, c2, fs, acts, gap, gk, lo, hi, cv, cf):
+    """:func:`_element_values` of an element of kind ``kd`` with these parameters."""
     if kd == SPRING:
-        return fs[e] + _spring_force(d, k[e], fs[e], acts[e], gap[e], gk[e]), _spring_energy(d, k[e], fs[e], acts[e], gap[e], gk[e])
+        return fs + _spring_force(d, k, fs, acts, gap, gk), _spring_energy(d, k, fs, acts, gap, gk)
     if kd == DAMPER:
-        return c[e] * dv, 0.0
+        return c * dv, 0.0
     if kd == ASYMMETRIC_DAMPER:
-        return (c[e] * dv if dv > 0.0 else c2[e] * dv), 0.0
+        return (c * dv if dv > 0.0 else c2 * dv), 0.0
     if kd == CURVE_DAMPER:
-        return _curve_force(dv, coff[e], coff[e + 1], cv, cf), 0.0
-    return k[e] * dacc, 0.5 * k[e] * dv * dv
+        return _curve_force(dv, lo, hi, cv, cf), 0.0
+    return k * dacc, 0.5 * k * dv * dv
 
 
 @njit(cache=True, inline="always", error_model="numpy")
@@ -244,11 +249,14 @@ def element_series(
         qa, va, aa, ca = (q, v, a, ia) if ia < n else (u, ud, udd, ia - n)
         qb, vb, ab, cb = (q, v, a, ib) if ib < n else (u, ud, udd, ib - n)
         into = stored if kind[e] == SPRING else inerter_energy
+        # The element's parameters as scalars: the loop's stores cannot change them.
+        kd, ke, ce, c2e, fse, actse, gape, gke, lo, hi = (kind[e], k[e], c[e], c2[e], fs[e], acts[e], gap[e], gk[e],
+                                                         coff[e], coff[e + 1])  # fmt: skip
         for i in range(q.shape[0]):
             d = qb[i, cb] - qa[i, ca]
             deflection[i, e] = d
-            force[i, e], energy = _element_values(e, d, vb[i, cb] - va[i, ca], ab[i, cb] - aa[i, ca], kind, k, c, c2,
-                                                  fs, acts, gap, gk, coff, cv, cf)  # fmt: skip
+            force[i, e], energy = _values_of(kd, d, vb[i, cb] - va[i, ca], ab[i, cb] - aa[i, ca], ke, ce, c2e, fse,
+                                             actse, gape, gke, lo, hi, cv, cf)  # fmt: skip
             into[i] += energy
     restore_float_mode(mode)
 

@@ -411,6 +411,10 @@ class Prepared:
     model: tuple  # the kernels' model tuple without its work array (see lumped.kernels)
     lanes: Lanes | None = None  # small linear systems: explicit RK steps as affine maps
     maps: dict = field(default_factory=dict, compare=False, repr=False)  # their maps, by (tableau, step)
+    #: Work arrays of finished runs, by their shape, for the next run to take (a run
+    #: takes them out, so runs at the same time never share them; fresh arrays would
+    #: cost their first touch of every page again).
+    spare: dict = field(default_factory=dict, compare=False, repr=False)
 
 
 @_plain_pages()
@@ -564,6 +568,7 @@ class _Engine:
         self.out_step = np.zeros(samples, dtype=np.int64)
         self.count = 0
         self.events: list[Event] = []
+        self._finish: list = []  # called when the run ends
         scale = max(
             float(np.max(np.abs(static.displacement))) if n else 0.0,
             self.inputs.scale(),
@@ -650,6 +655,8 @@ class _Engine:
             self._store_current(self.steps)
         elif status != "completed" and self.out_step[self.count - 1] != k:
             self._store_current(k)
+        for finish in self._finish:
+            finish()
         return self._result(status, message, k, verdict)
 
     def _time(self, k: int) -> float:
@@ -772,8 +779,10 @@ class _Engine:
             except RuntimeError as exc:  # no place to write the generated kernel
                 raise RunError(str(exc)) from None
             if h not in work:
-                slots = input_slots(maps.inputs, columns, len(lanes.program[5]), len(lanes.program[7]))
-                work[h] = slots, *affine_rk_work(maps, lanes, min(CHUNK_STEPS, self.steps), self.every)
+                key = (maps.inputs, maps.rates, lanes.count, min(CHUNK_STEPS, self.steps), self.every)
+                arrays = self.prepared.spare.pop(key, None) or affine_rk_work(maps, lanes, *key[3:])
+                self._finish.append(lambda: self.prepared.spare.setdefault(key, arrays))
+                work[h] = input_slots(maps.inputs, columns, len(lanes.program[5]), len(lanes.program[7])), *arrays
             slots, lane, inputs, scratch = work[h]
             input_rows(lanes.program, clock, start, count, h, slots, inputs)
             if lanes.count == 1:
