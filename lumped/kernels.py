@@ -229,35 +229,51 @@ def element_state(
         force[e], energy[e] = _element_values(e, xb - xa, vb - va, ab - aa, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf)
 
 
+#: Elements up to which :func:`element_series` runs element by element (a long loop
+#: over the samples each); beyond, sample by sample, so that wide rows stay in cache.
+SERIES_BY_ELEMENT = 64
+
+
 @njit(**HOT)
 def element_series(
     q, v, a, u, ud, udd,
     ea, eb, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf,
-    deflection, force, stored, inerter_energy,
+    deflection, force, stored, inerter_energy, energy,
 ):  # fmt: skip
-    """:func:`element_state` over samples (rows of q, v, a, u, ud, udd), element by
-    element: fills ``deflection`` and ``force`` (samples × elements), and per sample
-    the springs' stored energy and the inerters' kinetic energy (J)."""
+    """:func:`element_state` over samples (rows of q, v, a, u, ud, udd): fills
+    ``deflection`` and ``force`` (samples × elements), and per sample the springs'
+    stored energy and the inerters' kinetic energy (J); ``energy`` is work space of
+    one float per element."""
     mode = flush_subnormals()
-    n = q.shape[1]
-    for i in range(q.shape[0]):
+    n, samples, elements = q.shape[1], q.shape[0], ea.shape[0]
+    for i in range(samples):
         stored[i] = 0.0
         inerter_energy[i] = 0.0
-    for e in range(ea.shape[0]):
-        ia, ib = ea[e], eb[e]
-        # An end on a body reads its column of q, v, a; on a support, of u, u', u''.
-        qa, va, aa, ca = (q, v, a, ia) if ia < n else (u, ud, udd, ia - n)
-        qb, vb, ab, cb = (q, v, a, ib) if ib < n else (u, ud, udd, ib - n)
-        into = stored if kind[e] == SPRING else inerter_energy
-        # The element's parameters as scalars: the loop's stores cannot change them.
-        kd, ke, ce, c2e, fse, actse, gape, gke, lo, hi = (kind[e], k[e], c[e], c2[e], fs[e], acts[e], gap[e], gk[e],
-                                                         coff[e], coff[e + 1])  # fmt: skip
-        for i in range(q.shape[0]):
-            d = qb[i, cb] - qa[i, ca]
-            deflection[i, e] = d
-            force[i, e], energy = _values_of(kd, d, vb[i, cb] - va[i, ca], ab[i, cb] - aa[i, ca], ke, ce, c2e, fse,
-                                             actse, gape, gke, lo, hi, cv, cf)  # fmt: skip
-            into[i] += energy
+    if elements > SERIES_BY_ELEMENT:
+        for i in range(samples):
+            element_state(q[i], v[i], a[i], u[i], ud[i], udd[i], ea, eb, kind, k, c, c2, fs, acts,
+                          gap, gk, coff, cv, cf, deflection[i], force[i], energy)  # fmt: skip
+            for e in range(elements):
+                if kind[e] == SPRING:
+                    stored[i] += energy[e]
+                else:
+                    inerter_energy[i] += energy[e]  # zero but for inerters
+    else:
+        for e in range(elements):
+            ia, ib = ea[e], eb[e]
+            # An end on a body reads its column of q, v, a; on a support, of u, u', u''.
+            qa, va, aa, ca = (q, v, a, ia) if ia < n else (u, ud, udd, ia - n)
+            qb, vb, ab, cb = (q, v, a, ib) if ib < n else (u, ud, udd, ib - n)
+            into = stored if kind[e] == SPRING else inerter_energy
+            # The element's parameters as scalars: the loop's stores cannot change them.
+            kd, ke, ce, c2e, fse, actse, gape, gke, lo, hi = (kind[e], k[e], c[e], c2[e], fs[e], acts[e], gap[e], gk[e],
+                                                             coff[e], coff[e + 1])  # fmt: skip
+            for i in range(samples):
+                d = qb[i, cb] - qa[i, ca]
+                deflection[i, e] = d
+                force[i, e], stored_e = _values_of(kd, d, vb[i, cb] - va[i, ca], ab[i, cb] - aa[i, ca], ke, ce, c2e,
+                                                   fse, actse, gape, gke, lo, hi, cv, cf)  # fmt: skip
+                into[i] += stored_e
     restore_float_mode(mode)
 
 

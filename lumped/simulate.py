@@ -1027,7 +1027,7 @@ class _Engine:
         stored = np.empty(count)
         inerter_energy = np.empty(count)
         ends = (np.ascontiguousarray(x) for x in (q, v, a, u, ud, udd))  # one layout for the compiled loop
-        kernels.element_series(*ends, *self.table.args(), deflection, force, stored, inerter_energy)
+        kernels.element_series(*ends, *self.table.args(), deflection, force, stored, inerter_energy, np.empty(ne))
         kinetic = 0.5 * ((v * v) @ self.m.mass) + inerter_energy
         events = self._events()
         return RunResult(
