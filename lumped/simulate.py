@@ -61,6 +61,8 @@ __all__ = ["RunError", "Event", "RunResult", "Prepared", "prepare", "simulate", 
 
 #: Steps per compiled chunk between the driver's progress/cancel/divergence checks.
 CHUNK_STEPS = 8192
+#: Shapes of work arrays a prepared system keeps for its next runs.
+SPARE_SHAPES = 4
 #: A body displacement beyond this many times the run's displacement scale diverged.
 DIVERGENCE_FACTOR = 1e6
 #: Default cap on the memory a run's output may take: a quarter of the machine's.
@@ -781,7 +783,7 @@ class _Engine:
             if h not in work:
                 key = (maps.inputs, maps.rates, lanes.count, min(CHUNK_STEPS, self.steps), self.every)
                 arrays = self.prepared.spare.pop(key, None) or affine_rk_work(maps, lanes, *key[3:])
-                self._finish.append(lambda: self.prepared.spare.setdefault(key, arrays))
+                self._finish.append(lambda: _keep_spare(self.prepared.spare, key, arrays))
                 work[h] = input_slots(maps.inputs, columns, len(lanes.program[5]), len(lanes.program[7])), *arrays
             slots, lane, inputs, scratch = work[h]
             input_rows(lanes.program, clock, start, count, h, slots, inputs)
@@ -1077,6 +1079,14 @@ class _Engine:
         if self.n_ev > self.ev_capacity:
             out.append(Event(math.nan, "", f"{self.n_ev - self.ev_capacity} more events not kept"))
         return sorted(out, key=lambda e: (e.time, e.element))
+
+
+def _keep_spare(spare: dict, key: tuple, arrays: tuple) -> None:
+    """Keep a finished run's work arrays for the next run of the same shape (a few
+    shapes at most: a system run at many settings keeps only its latest)."""
+    if key not in spare and len(spare) >= SPARE_SHAPES:
+        spare.pop(next(iter(spare)))
+    spare.setdefault(key, arrays)
 
 
 def _trimmed(samples: np.ndarray, buffer: np.ndarray) -> np.ndarray:
