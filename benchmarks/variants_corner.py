@@ -15,6 +15,7 @@ import sys
 import time
 
 import numpy as np
+from _timing import median_time
 from corner_rk4 import linear_corner
 from scipy.integrate import solve_ivp
 
@@ -35,9 +36,7 @@ def main(count: int = 1000) -> None:
     settings = dict(dt=1e-3, duration=10.0, output_rate=100.0)
     # compile (the generated kernel of this structure, once per machine, then cached on disk)
     simulate_variants(base, {k: v[:2] for k, v in changes.items()}, "rk4", **settings, specialise=True)
-    start = time.perf_counter()
-    runs = simulate_variants(base, changes, "rk4", **settings)
-    batch = time.perf_counter() - start
+    batch, runs = median_time(lambda: simulate_variants(base, changes, "rk4", **settings), 3)
 
     sample = 40
     variants = [variant_system(base, {k: v[i] for k, v in changes.items()}) for i in range(sample)]
@@ -59,7 +58,7 @@ def main(count: int = 1000) -> None:
     solve_ivp(rhs, (0, 10.0), np.zeros(space.A.shape[0]), method="RK45", rtol=1e-6, atol=1e-9,
               t_eval=np.linspace(0, 10.0, 1001), max_step=0.02)  # fmt: skip
     ivp = time.perf_counter() - start
-    print(f"{count} variants, rk4 10 s at 1 ms, one call: {batch:.3f} s "
+    print(f"{count} variants, rk4 10 s at 1 ms, one call: {batch:.3f} s median of 3 "
           f"({batch / (count * 10_000) * 1e9:.1f} ns per variant-step, all set-up included)")
     print(f"variant by variant (scaled from {sample}): {one_by_one:.2f} s; ratio {one_by_one / batch:.1f}× "
           f"(target ≥ {TARGET_SINGLE:g}×: {'met' if one_by_one / batch >= TARGET_SINGLE else 'NOT met'})")
