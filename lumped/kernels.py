@@ -186,16 +186,11 @@ def body_accelerations(q, v, U, Ud, Udd, FF, col, model, acc, rates):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _element_values(e, d, dv, dacc, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf):
+def _element_values(kd, d, dv, dacc, k, c, c2, fs, acts, gap, gk, lo, hi, cv, cf):
     """Total force (N, static included, tension positive) and stored energy (J;
-    inerters: ½ b δ'²) of element e at deflection d from static (m), its rate dv and
-    second rate dacc."""
-    return _values_of(kind[e], d, dv, dacc, k[e], c[e], c2[e], fs[e], acts[e], gap[e], gk[e], coff[e], coff[e + 1], cv, cf)
-
-
-@njit(cache=True, inline="always", error_model="numpy")
-def _values_of(kd, d, dv, dacc, k, c, c2, fs, acts, gap, gk, lo, hi, cv, cf):
-    """:func:`_element_values` of an element of kind ``kd`` with these parameters."""
+    inerters: ½ b δ'²) of an element of kind ``kd`` with these parameters (a curve
+    damper's points lo … hi−1 of cv, cf), at deflection d from static (m), its rate
+    dv and second rate dacc."""
     if kd == SPRING:
         return fs + _spring_force(d, k, fs, acts, gap, gk), _spring_energy(d, k, fs, acts, gap, gk)
     if kd == DAMPER:
@@ -226,7 +221,8 @@ def element_state(
         aa = a[i] if i < n else udd[i - n]
         ab = a[j] if j < n else udd[j - n]
         deflection[e] = xb - xa
-        force[e], energy[e] = _element_values(e, xb - xa, vb - va, ab - aa, kind, k, c, c2, fs, acts, gap, gk, coff, cv, cf)
+        force[e], energy[e] = _element_values(kind[e], xb - xa, vb - va, ab - aa, k[e], c[e], c2[e], fs[e], acts[e],
+                                              gap[e], gk[e], coff[e], coff[e + 1], cv, cf)  # fmt: skip
 
 
 #: Elements up to which :func:`element_series` runs element by element (a long loop
@@ -271,8 +267,8 @@ def element_series(
             for i in range(samples):
                 d = qb[i, cb] - qa[i, ca]
                 deflection[i, e] = d
-                force[i, e], stored_e = _values_of(kd, d, vb[i, cb] - va[i, ca], ab[i, cb] - aa[i, ca], ke, ce, c2e,
-                                                   fse, actse, gape, gke, lo, hi, cv, cf)  # fmt: skip
+                force[i, e], stored_e = _element_values(kd, d, vb[i, cb] - va[i, ca], ab[i, cb] - aa[i, ca], ke, ce,
+                                                        c2e, fse, actse, gape, gke, lo, hi, cv, cf)  # fmt: skip
                 into[i] += stored_e
     restore_float_mode(mode)
 

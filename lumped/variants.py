@@ -146,6 +146,12 @@ def _unstacked(problem) -> str:
     return str(problem)
 
 
+def _refuse(problems: list, told) -> None:
+    """Raise :class:`VariantError` listing the first five ``problems``, each as ``told`` tells it."""
+    if problems:
+        raise VariantError("; ".join(told(p) for p in problems[:5]) + (" …" if len(problems) > 5 else ""))
+
+
 def _copy(item, **fields):
     """A copy of the frozen dataclass ``item`` with ``fields`` replaced — what
     ``dataclasses.replace`` gives, some ten times faster, for the thousands of items of
@@ -219,14 +225,10 @@ def simulate_variants(
         if not np.all(np.isfinite(v)):
             raise VariantError(f"variant change {path!r}: every value must be finite")
     count = lengths.pop()
-    problems = check_system(system)
-    if problems:
-        raise VariantError("; ".join(str(p) for p in problems[:5]) + (" …" if len(problems) > 5 else ""))
+    _refuse(check_system(system), str)
     stacked = _stacked(system, values, count)
     # One check of every variant's values; each variant's graph is the base's, checked above.
-    problems = check_system(stacked, connectivity=False)
-    if problems:
-        raise VariantError("; ".join(_unstacked(p) for p in problems[:5]) + (" …" if len(problems) > 5 else ""))
+    _refuse(check_system(stacked, connectivity=False), _unstacked)
     batch = simulate(prepare(stacked, lanes=count), stepper, dt, duration, output_rate, output_every, check=False,
                      specialise=specialise)  # fmt: skip
     n = len(system.bodies)
