@@ -41,10 +41,11 @@ from pathlib import Path
 import numpy as np
 from numba import njit
 
+from lumped.float_mode import flush_subnormals, restore_float_mode
 from lumped.kernels import body_accelerations, stage_time
 from lumped.signal_kernels import HOT, force_value, signal_span, support_motion
 
-__all__ = ["Lanes", "lanes_of", "RKMaps", "rk_maps", "input_slots", "input_rows", "chunk_kernels", "is_compiled", "SPECIALISE_STEPS", "AFFINE_RK_LIMIT", "LANE_BLOCK"]
+__all__ = ["Lanes", "lanes_of", "RKMaps", "rk_maps", "FreeMaps", "free_maps", "free_runs", "free_chunk", "free_work", "input_slots", "input_rows", "chunk_kernels", "is_compiled", "SPECIALISE_STEPS", "AFFINE_RK_LIMIT", "LANE_BLOCK", "FREE_LEAST_STEPS", "FREE_LEAST_WORK"]
 
 #: Bodies per lane up to which explicit Runge–Kutta runs of linear systems take the
 #: affine map (its cost grows as the square of the state; the element loop's as
@@ -56,6 +57,13 @@ LANE_BLOCK = 16
 #: on-disk cache yet (the compile takes some 5 s for one lane, 15 s for many; the
 #: kernel saves some 0.1 µs per lane-step).
 SPECIALISE_STEPS = 10**8
+#: Steps of free response (no input acting) from which a run joins them into one map
+#: per sample interval (:func:`free_maps`) instead of stepping them one by one; and
+#: the least lane-steps per interval of a block for which that pays (steps between
+#: samples × lanes up to :data:`LANE_BLOCK`: a joined interval of a block costs about
+#: as much as 16 lane-steps of the step-by-step kernel, measured on the corner).
+FREE_LEAST_STEPS = 64
+FREE_LEAST_WORK = 16
 #: The chunk kernel's sums may be evaluated in any order (and with fused
 #: multiply-adds); results differ from the element-loop kernel's by rounding only.
 REORDERED = dict(HOT, fastmath={"reassoc", "contract"})
@@ -223,6 +231,12 @@ class RKMaps:
     sample: np.ndarray
     inputs: tuple[tuple[int, int, int], ...]
     rates: tuple[int, ...]  # the rates some lane has
+    #: The step where no input acts, per lane: z₁ = P_z z (count, 2n, 2n), the energy
+    #: increment zᵀ Q_p z of each rate (count, 3, 2n, 2n) and the acceleration A_z z
+    #: (count, n, 2n); :func:`free_maps` joins them over a sample interval.
+    free_step: np.ndarray
+    free_energy: np.ndarray
+    free_acc: np.ndarray
 
 
 def rk_maps(lanes: Lanes, a: np.ndarray, b: np.ndarray, stage_col: np.ndarray, columns: int, end_col: int,
@@ -277,7 +291,169 @@ def rk_maps(lanes: Lanes, a: np.ndarray, b: np.ndarray, stage_col: np.ndarray, c
                                        rows(energy[:, :, kept[wi], kept[wj]] * doubled(wi, wj))])),  # fmt: skip
         inputs=tuple((c, *kinds[k]) for c, k in keep),
         rates=tuple(int(p) for p in np.flatnonzero(np.any(energy != 0, axis=(0, 2, 3)))),
+        free_step=np.ascontiguousarray(step[:, :, :nz]),
+        free_energy=np.ascontiguousarray(energy[:, :, :nz, :nz]),
+        free_acc=np.ascontiguousarray(A[:, n:, :]),
     )
+
+
+@dataclass(frozen=True)
+class FreeMaps:
+    """``every`` steps of free response (no input acting) as one map, for
+    :func:`free_chunk`, the lane index innermost: z after = ``phi`` z (2n, 2n, count);
+    the energy of the interval of rate ``rates[r]``, Σₜ ``energy[r, t]`` z_a z_b over
+    the pairs (a, b) = (``first[t]``, ``second[t]``), a ≤ b; the acceleration at its
+    end ``acc`` z (n, 2n, count)."""
+
+    every: int
+    phi: np.ndarray
+    energy: np.ndarray
+    first: np.ndarray
+    second: np.ndarray
+    rates: np.ndarray
+    acc: np.ndarray
+
+
+def free_maps(maps: RKMaps, every: int) -> FreeMaps:
+    """The free response of ``every`` steps of ``maps`` joined (by repeated squaring):
+    Φ = P_zᵉ and, for each rate, E = Σᵢ₌₀ᵉ⁻¹ (P_zⁱ)ᵀ Q P_zⁱ — the step-by-step
+    kernel's states and energy up to rounding."""
+
+    def join(first, second):
+        """(Φ, E) of the steps of ``first`` followed by those of ``second``."""
+        (pa, ea), (pb, eb) = first, second
+        return pb @ pa, ea + np.swapaxes(pa, 1, 2)[:, None] @ eb @ pa[:, None]
+
+    power, total, left = (maps.free_step, maps.free_energy), None, every
+    with np.errstate(over="ignore", invalid="ignore"):  # an unstable step: the kernel reports it
+        while left:
+            if left & 1:
+                total = power if total is None else join(total, power)
+            left >>= 1
+            if left:
+                power = join(power, power)
+    phi, energy = total
+    nz = phi.shape[1]
+    first, second = np.triu_indices(nz)
+    pairs = (energy + np.swapaxes(energy, 2, 3))[:, :, first, second] * np.where(first == second, 0.5, 1.0)
+    rates = np.flatnonzero(np.any(pairs != 0, axis=(0, 2)))
+
+    def innermost(x):
+        return np.ascontiguousarray(np.moveaxis(x, 0, -1))
+
+    return FreeMaps(every, innermost(phi), innermost(pairs[:, rates]), first.astype(np.int64),
+                    second.astype(np.int64), rates.astype(np.int64), innermost(maps.free_acc))  # fmt: skip
+
+
+def free_runs(W: np.ndarray, k0: int, nsteps: int, every: int, least: int) -> list[tuple[int, int]]:
+    """The stretches of steps k0 … k0+nsteps−1 where no input acts (columns of the
+    inputs W of :func:`input_rows` all zero) made of whole sample intervals (global
+    steps i·every … (i+1)·every − 1), at least ``least`` steps long: (first step,
+    intervals) each."""
+    first = -(-k0 // every) * every
+    whole = (k0 + nsteps - first) // every
+    if whole < 1 or whole * every < least:
+        return []
+    active = W[:, first - k0 : first - k0 + whole * every].any(axis=0).reshape(whole, every).any(axis=1)
+    edges = np.flatnonzero(np.diff(np.concatenate([[1], active.view(np.int8), [1]])))
+    runs = []
+    for start, end in zip(edges[::2], edges[1::2], strict=True):
+        if (end - start) * every >= least:
+            runs.append((first + int(start) * every, int(end - start)))
+    return runs
+
+
+@njit(**REORDERED)
+def free_chunk(maps_phi, maps_energy, first, second, rates, acc, z, work, energy, k0, intervals, every,
+               out_q, out_v, out_a, out_e, out_step, n_out, q_limit):  # fmt: skip
+    """``intervals`` sample intervals of free response from global step k0 (a sample
+    step) for every lane: z (2n, count) ← Φ z (:class:`FreeMaps`), the energy
+    gained, and a sample at each interval's end, as :func:`chunk_kernels` writes
+    them. The lanes run in blocks of :data:`LANE_BLOCK` through all the intervals,
+    a block's maps and states copied into ``work`` (:func:`free_work`), so that they
+    stay in the first-level cache and the lane loops have a constant length. A lane
+    whose state at an interval's end is beyond ``q_limit`` (or not a number) stops
+    the kernel: it returns (1, intervals before that one, samples), and the caller
+    runs again from its start to there. Returns (0, intervals, samples) else."""
+    mode = flush_subnormals()
+    nz, count = z.shape
+    n = nz // 2
+    nr, pairs = rates.shape[0], first.shape[0]
+    phi, form, slope, state, spare, gains = work
+    capacity = out_q.shape[0]
+    kept = min(intervals, capacity - n_out)
+    for i in range(kept):
+        for p in range(3):
+            out_e[n_out + i, p] = energy[p]
+        out_step[n_out + i] = k0 + (i + 1) * every
+    span = min(count, LANE_BLOCK)  # lanes of a block (one system: one)
+    for low in range(0, count, LANE_BLOCK):
+        width = min(LANE_BLOCK, count - low)
+        for lane in range(span):
+            inside = lane < width
+            for a in range(nz):
+                state[a, lane] = z[a, low + lane] if inside else 0.0
+                for b in range(nz):
+                    phi[a, b, lane] = maps_phi[a, b, low + lane] if inside else 0.0
+            for a in range(n):
+                for b in range(nz):
+                    slope[a, b, lane] = acc[a, b, low + lane] if inside else 0.0
+            for r in range(nr):
+                gains[r, lane] = 0.0
+                for t in range(pairs):
+                    form[r, t, lane] = maps_energy[r, t, low + lane] if inside else 0.0
+        for i in range(intervals):
+            for r in range(nr):
+                for t in range(pairs):
+                    a, b = first[t], second[t]
+                    for lane in range(span):
+                        gains[r, lane] += form[r, t, lane] * state[a, lane] * state[b, lane]
+            for a in range(nz):
+                for lane in range(span):
+                    spare[a, lane] = 0.0
+                for b in range(nz):
+                    for lane in range(span):
+                        spare[a, lane] += phi[a, b, lane] * state[b, lane]
+            fine = True
+            for a in range(n):
+                for lane in range(span):
+                    fine &= abs(spare[a, lane]) <= q_limit
+            if not fine:
+                restore_float_mode(mode)
+                return 1, i, n_out + min(i, kept)
+            for a in range(nz):
+                for lane in range(span):
+                    state[a, lane] = spare[a, lane]
+            if i < kept:
+                m = n_out + i
+                for lane in range(width):
+                    for r in range(n):
+                        s = 0.0
+                        for b in range(nz):
+                            s += slope[r, b, lane] * state[b, lane]
+                        out_q[m, (low + lane) * n + r] = state[r, lane]
+                        out_v[m, (low + lane) * n + r] = state[n + r, lane]
+                        out_a[m, (low + lane) * n + r] = s
+                for r in range(nr):
+                    gained = 0.0
+                    for lane in range(span):
+                        gained += gains[r, lane]
+                    out_e[m, rates[r]] += gained
+        for a in range(nz):
+            for lane in range(width):
+                z[a, low + lane] = state[a, lane]
+        for r in range(nr):
+            for lane in range(span):
+                energy[rates[r]] += gains[r, lane]
+    restore_float_mode(mode)
+    return 0, intervals, n_out + kept
+
+
+def free_work(maps: FreeMaps) -> tuple:
+    """Work space of :func:`free_chunk` for ``maps``: one block's maps, state and sums."""
+    nz, pairs, rates = maps.phi.shape[0], maps.first.shape[0], max(len(maps.rates), 1)
+    shapes = ((nz, nz), (rates, pairs), (nz // 2, nz), (nz,), (nz,), (rates,))
+    return tuple(np.zeros((*shape, LANE_BLOCK)) for shape in shapes)
 
 
 def blocked(rows: np.ndarray) -> np.ndarray:

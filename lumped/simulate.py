@@ -31,11 +31,17 @@ from lumped.errors import LumpedError
 from lumped.excitation import Signal, signal_for
 from lumped.kernels import LEFT_LIMIT
 from lumped.linear_rk import (
+    FREE_LEAST_STEPS,
+    FREE_LEAST_WORK,
     LANE_BLOCK,
     SPECIALISE_STEPS,
     Lanes,
     affine_rk_work,
     chunk_kernels,
+    free_chunk,
+    free_maps,
+    free_runs,
+    free_work,
     input_rows,
     input_slots,
     is_compiled,
@@ -774,19 +780,14 @@ class _Engine:
         ):
             return None
 
-        def kernel(start, count, h, clock):
+        def stepwise(start, count, h, clock, fresh):
+            """Steps start … start+count−1 one by one in the generated kernel; the
+            inputs W are made first when ``fresh``."""
             maps = maps_at(h)
-            try:
-                one, many = chunk_kernels(2 * n, maps.inputs, maps.rates)
-            except RuntimeError as exc:  # no place to write the generated kernel
-                raise RunError(str(exc)) from None
-            if h not in work:
-                key = (maps.inputs, maps.rates, lanes.count, min(CHUNK_STEPS, self.steps), self.every)
-                arrays = self.prepared.spare.pop(key, None) or affine_rk_work(maps, lanes, *key[3:])
-                self._finish.append(lambda: _keep_spare(self.prepared.spare, key, arrays))
-                work[h] = input_slots(maps.inputs, columns, len(lanes.program[5]), len(lanes.program[7])), *arrays
+            one, many = chunk_kernels(2 * n, maps.inputs, maps.rates)
             slots, lane, inputs, scratch = work[h]
-            input_rows(lanes.program, clock, start, count, h, slots, inputs)
+            if fresh:
+                input_rows(lanes.program, clock, start, count, h, slots, inputs)
             if lanes.count == 1:
                 lane[: 2 * n * LANE_BLOCK : LANE_BLOCK] = np.concatenate([self.q, self.v])
                 status, done, samples = one(maps.step, maps.sample, lane, self.energy, start, count, inputs, *scratch,
@@ -809,6 +810,63 @@ class _Engine:
                 self.q, self.v = z[:n].T.ravel(), z[n:].T.ravel()
             self.count = samples
             return status, done
+
+        def free(first, intervals, h):
+            """Sample intervals of free response from step ``first`` (:func:`free_chunk`)."""
+            key = ("free", a.tobytes(), b.tobytes(), h, self.every)
+            if key not in memo:
+                memo[key] = free_maps(maps_at(h), self.every)
+            joined = memo[key]
+            z = np.concatenate([self.q.reshape(lanes.count, n).T, self.v.reshape(lanes.count, n).T])
+            start_z, start_energy, start_count = z.copy(), self.energy.copy(), self.count
+
+            def chunk(intervals):
+                return free_chunk(joined.phi, joined.energy, joined.first, joined.second, joined.rates, joined.acc,
+                                  z, free_work(joined), self.energy, first, intervals, *self._output_buffers(),
+                                  self.q_limit)  # fmt: skip
+
+            status, done, self.count = chunk(intervals)
+            if status != kernels.OK:  # every lane again, to the interval where one went beyond
+                z[:], self.energy[:], self.count = start_z, start_energy, start_count
+                _, done, self.count = chunk(done)
+            self.q, self.v = z[:n].T.ravel(), z[n:].T.ravel()
+            return status, done
+
+        def kernel(start, count, h, clock):
+            maps = maps_at(h)
+            try:
+                chunk_kernels(2 * n, maps.inputs, maps.rates)
+            except RuntimeError as exc:  # no place to write the generated kernel
+                raise RunError(str(exc)) from None
+            if h not in work:
+                key = (maps.inputs, maps.rates, lanes.count, min(CHUNK_STEPS, self.steps), self.every)
+                arrays = self.prepared.spare.pop(key, None) or affine_rk_work(maps, lanes, *key[3:])
+                self._finish.append(lambda: _keep_spare(self.prepared.spare, key, arrays))
+                work[h] = input_slots(maps.inputs, columns, len(lanes.program[5]), len(lanes.program[7])), *arrays
+            slots, _, inputs, _ = work[h]
+            input_rows(lanes.program, clock, start, count, h, slots, inputs)
+            # Stretches where no input acts, a whole sample interval at a time.
+            pays = h == self.h and self.every * min(lanes.count, LANE_BLOCK) >= FREE_LEAST_WORK
+            runs = free_runs(inputs, start, count, self.every, FREE_LEAST_STEPS) if pays else []
+            if not runs:
+                return stepwise(start, count, h, clock, fresh=False)
+            k = start
+            for first, intervals in [*runs, (start + count, 0)]:
+                if first > k:
+                    status, done = stepwise(k, first - k, h, clock, fresh=True)
+                    if status != kernels.OK:
+                        return status, k - start + done
+                    k = first
+                if intervals:
+                    status, done = free(first, intervals, h)
+                    k = first + done * self.every
+                    if status != kernels.OK:  # the step-by-step kernel finds the step that diverged
+                        rest = first + intervals * self.every - k
+                        status, done = stepwise(k, rest, h, clock, fresh=True)
+                        if status != kernels.OK:
+                            return status, k - start + done
+                        k += rest
+            return kernels.OK, count
 
         return kernel
 

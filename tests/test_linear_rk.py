@@ -15,7 +15,7 @@ import lumped
 from lumped.linear_rk import AFFINE_RK_LIMIT, rk_maps
 from lumped.simulate import prepare, simulate
 from lumped.steppers import get_stepper
-from lumped.variants import simulate_variants
+from lumped.variants import simulate_variants, variant_system
 
 
 def linear_corner() -> lumped.System:
@@ -191,3 +191,119 @@ def test_a_prepared_system_reuses_its_work_arrays_without_carrying_anything_over
     assert prepared.spare, "the runs kept no work arrays"
     for name in ("displacement", "velocity", "acceleration", "dissipated", "support_work", "force"):
         np.testing.assert_array_equal(getattr(again, name), getattr(first, name), err_msg=name)
+
+
+def _free_corner(**body_changes) -> lumped.System:
+    """The linear corner with the bump moved beyond every run here, and the bodies'
+    initial state changed (free response about static equilibrium)."""
+    system = linear_corner()
+    bodies = {k: dataclasses.replace(b, **body_changes.get(k, {})) for k, b in system.bodies.items()}
+    inputs = {k: dataclasses.replace(i, time=100.0) for k, i in system.inputs.items()}
+    return dataclasses.replace(system, bodies=bodies, inputs=inputs)
+
+
+@pytest.fixture
+def free_calls(monkeypatch):
+    """Counts the calls of the free-response kernel (so a test knows it ran)."""
+    import lumped.simulate as engine
+
+    calls = []
+
+    def counted(*args):
+        calls.append(args[10])  # intervals
+        return kernel(*args)
+
+    kernel = engine.free_chunk
+    monkeypatch.setattr(engine, "free_chunk", counted)
+    return calls
+
+
+def test_free_response_is_the_rk4_polynomial_to_the_power_of_the_samples(free_calls):
+    # Free vibration of the corner from an initial displacement: RK4 on z' = Az takes
+    # z_k = P^k z₀, P = Σⱼ₌₀⁴ (hA)ʲ/j! (Hairer, Nørsett & Wanner, Solving ODEs I, §II.1
+    # [recalled from memory]); A from Newton's second law with the demo's masses,
+    # stiffnesses and the damper's mean coefficient (quarter-car demo, invented).
+    system = _free_corner(body={"initial_displacement": 0.02}, wheel={"initial_velocity": -0.3})
+    m_w, m_b = system.bodies["wheel"].mass, system.bodies["body"].mass
+    k_t, k_s = system.springs["tyre"].stiffness, system.springs["suspension_spring"].stiffness
+    c_s = system.dampers["suspension_damper"].coefficient
+    M = np.diag([m_w, m_b])
+    K = np.array([[k_t + k_s, -k_s], [-k_s, k_s]])
+    C = np.array([[c_s, -c_s], [-c_s, c_s]])
+    A = np.block([[np.zeros((2, 2)), np.eye(2)], [-np.linalg.solve(M, K), -np.linalg.solve(M, C)]])
+    h, every = 1e-3, 50
+    hA = h * A
+    P = sum(np.linalg.matrix_power(hA, j) / math.factorial(j) for j in range(5))
+    run = simulate(system, "rk4", h, 3.0, output_rate=1 / (every * h), check=False, specialise=True)
+    assert sum(free_calls) == 60, "the run did not take the free-response path"
+    z0 = np.array([0.0, 0.02, -0.3, 0.0])  # wheel, body displacement; wheel, body velocity
+    expected = np.array([np.linalg.matrix_power(P, k * every) @ z0 for k in range(61)])
+    assert _relative(run.displacement, expected[:, :2]) < 1e-12
+    assert _relative(run.velocity, expected[:, 2:]) < 1e-12
+    # Newton's second law at each sample: a = −M⁻¹(K q + C v).
+    assert _relative(run.acceleration, -(expected[:, :2] @ K.T + expected[:, 2:] @ C.T) / [m_w, m_b]) < 1e-12
+    # No input: the damper dissipates the mechanical energy lost, up to the stepper's
+    # error, which falls as h⁴ (RK4's order; halving h divides it by 16).
+    assert run.support_work[-1] == 0.0
+    half = simulate(system, "rk4", h / 2, 3.0, output_rate=1 / (every * h), check=False, specialise=True)
+    assert 12 < run.balance_ratio / half.balance_ratio < 20
+
+
+@pytest.mark.parametrize("count", [1, 40])
+def test_free_stretches_take_the_step_by_step_kernels_states(count, monkeypatch, free_calls):
+    # Around the bump, free stretches joined a sample interval at a time; the steps
+    # are the same, so every channel and the energy equal the step-by-step run to
+    # rounding. 12.3456 s is no whole number of steps and spans chunks.
+    import lumped.simulate as engine
+
+    base = _free_corner(body={"initial_displacement": 0.01})
+    base = dataclasses.replace(base, inputs={k: dataclasses.replace(i, time=4.1) for k, i in base.inputs.items()})
+    settings = dict(dt=5e-4, duration=12.3456, output_rate=50.0, specialise=True)
+    changes = {"springs.suspension_spring.stiffness": np.linspace(16e3, 32e3, count),
+               "dampers.suspension_damper.coefficient": np.linspace(1.2e3, 2.8e3, count)}  # fmt: skip
+
+    def run():
+        if count == 1:
+            return simulate(base, "rk4", check=False, **settings)
+        return simulate_variants(base, changes, "rk4", **settings).batch
+
+    joined = run()
+    assert free_calls, "the run did not take the free-response path"
+    monkeypatch.setattr(engine, "FREE_LEAST_STEPS", 10**12)
+    stepwise = run()
+    np.testing.assert_array_equal(joined.time, stepwise.time)
+    assert joined.time[-1] == 12.3456
+    for name in ("displacement", "velocity", "acceleration", "force", "kinetic", "stored", "dissipated", "support_work"):
+        assert _relative(getattr(joined, name), getattr(stepwise, name)) < 1e-11, name
+    assert joined.balance_ratio == pytest.approx(stepwise.balance_ratio, rel=1e-6, abs=1e-12)
+
+
+@pytest.mark.parametrize("count", [1, 3])
+def test_a_run_diverging_in_a_free_stretch_stops_at_the_step_by_step_kernels_step(count, monkeypatch, free_calls):
+    # A tyre far too stiff for RK4 at this step (ωh ≈ 4.9, beyond the stability limit
+    # 2.785 — common practice, the RK4 stability interval on the imaginary axis) in the
+    # last variant: the free stretch finds it at a sample, the step-by-step kernel
+    # finds the step, as a run without free stretches does.
+    import lumped.simulate as engine
+
+    base = _free_corner(wheel={"initial_displacement": 0.01})
+    changes = {"springs.tyre.stiffness": [2.3e5, 2.4e5, 4.0e9][-count:]}
+    settings = dict(dt=5e-4, duration=2.0, output_rate=10.0, specialise=True)
+
+    def run():
+        if count == 1:
+            return simulate(variant_system(base, changes_of(0)), "rk4", check=False, **settings)
+        return simulate_variants(base, changes, "rk4", **settings).batch
+
+    def changes_of(i):
+        return {path: values[i] for path, values in changes.items()}
+
+    joined = run()
+    assert free_calls, "the run did not take the free-response path"
+    monkeypatch.setattr(engine, "FREE_LEAST_STEPS", 10**12)
+    stepwise = run()
+    assert joined.status == stepwise.status == "diverged"
+    assert joined.steps == stepwise.steps
+    assert joined.message == stepwise.message
+    np.testing.assert_array_equal(joined.time, stepwise.time)
+    assert _relative(joined.displacement, stepwise.displacement) < 1e-11
