@@ -229,6 +229,16 @@ class _Elements:
         return (self.ea, self.eb, self.kind, self.k, self.c, self.c2, self.fs, self.acts,
                 self.gap, self.gk, self.coff, self.cv, self.cf)  # fmt: skip
 
+    def taken(self, order: np.ndarray) -> _Elements:
+        """The table of the elements ``order`` (indices), in that order."""
+        curve = self.kind[order] == kernels.CURVE_DAMPER
+        low, high = self.coff[order], self.coff[order + 1]
+        points = np.concatenate([np.arange(a, b) for a, b in zip(low[curve], high[curve], strict=True)] or [[]])
+        coff = np.concatenate([[0], np.cumsum(np.where(curve, high - low, 0))]).astype(np.int64)
+        picked = (self.ea, self.eb, self.kind, self.k, self.c, self.c2, self.fs, self.acts, self.gap, self.gk)
+        return _Elements(*(x[order] for x in picked), coff, self.cv[points.astype(np.int64)],
+                         self.cf[points.astype(np.int64)])  # fmt: skip
+
     def links(self):
         """Linear springs and dampers merged per (lower, upper) node pair: (a, b, k, c)."""
         spring = (self.kind == kernels.SPRING) & (self.acts == 0) & ~np.isfinite(self.gap)
@@ -418,6 +428,9 @@ class Prepared:
     inputs: _Inputs
     model: tuple  # the kernels' model tuple without its work array (see lumped.kernels)
     lanes: Lanes | None = None  # small linear systems: explicit RK steps as affine maps
+    #: The elements' order in a run's element channels (indices into the system's
+    #: elements; None: the system's order), so that each copy's can be one block.
+    element_order: np.ndarray | None = None
     maps: dict = field(default_factory=dict, compare=False, repr=False)  # their maps, by (tableau, step)
     #: Work arrays of finished runs, by their shape, for the next run to take (a run
     #: takes them out, so runs at the same time never share them; fresh arrays would
@@ -1081,13 +1094,19 @@ class _Engine:
         time = np.where(steps >= self.steps, self.T, steps * self.h)
         q, v, a = self.out_q[:count], self.out_v[:count], self.out_a[:count]
         u, ud, udd, F = self.inputs.at(time)
-        ne = len(self.m.element_ids)
+        order = self.prepared.element_order
+        table = self.table if order is None else self.table.taken(order)
+        element_ids, element_kinds = self.m.element_ids, self.m.element_kinds
+        if order is not None:
+            element_ids = tuple(element_ids[e] for e in order)
+            element_kinds = tuple(element_kinds[e] for e in order)
+        ne = len(element_ids)
         deflection = np.empty((count, ne))
         force = np.empty((count, ne))
         stored = np.empty(count)
         inerter_energy = np.empty(count)
         ends = (np.ascontiguousarray(x) for x in (q, v, a, u, ud, udd))  # one layout for the compiled loop
-        kernels.element_series(*ends, *self.table.args(), deflection, force, stored, inerter_energy, np.empty(ne))
+        kernels.element_series(*ends, *table.args(), deflection, force, stored, inerter_energy, np.empty(ne))
         kinetic = 0.5 * ((v * v) @ self.m.mass) + inerter_energy
         events = self._events()
         return RunResult(
@@ -1097,8 +1116,8 @@ class _Engine:
             duration=self.T,
             time=time,
             body_ids=self.m.body_ids,
-            element_ids=self.m.element_ids,
-            element_kinds=self.m.element_kinds,
+            element_ids=element_ids,
+            element_kinds=element_kinds,
             support_ids=self.m.support_ids,
             force_ids=self.m.force_ids,
             displacement=_trimmed(q, self.out_q),

@@ -229,20 +229,19 @@ def simulate_variants(
     stacked = _stacked(system, values, count)
     # One check of every variant's values; each variant's graph is the base's, checked above.
     _refuse(check_system(stacked, connectivity=False), _unstacked)
-    batch = simulate(prepare(stacked, lanes=count), stepper, dt, duration, output_rate, output_every, check=False,
-                     specialise=specialise)  # fmt: skip
+    # Bodies are laid variant by variant; elements by group, so the batch's element
+    # channels are ordered variant by variant too, and each variant's are a view.
+    prepared = prepare(stacked, lanes=count)
+    element_ids = tuple(system.elements)
+    position = {element: k for k, element in enumerate(prepared.matrices.element_ids)}
+    order = np.array([position[_prefix(i) + x] for i in range(count) for x in element_ids], dtype=np.int64)
+    batch = simulate(dataclasses.replace(prepared, element_order=order), stepper, dt, duration, output_rate,
+                     output_every, check=False, specialise=specialise)  # fmt: skip
     n = len(system.bodies)
     samples = len(batch.time)
-    # Bodies are laid variant by variant; elements by group, so pick them by id.
-    position = {element: k for k, element in enumerate(batch.element_ids)}
-    element_ids = tuple(system.elements)
-    columns = np.array([[position[_prefix(i) + x] for x in element_ids] for i in range(count)])
 
     def split(array: np.ndarray, width: int) -> np.ndarray:
         return array.reshape(samples, count, width).transpose(1, 0, 2)
-
-    def pick(array: np.ndarray) -> np.ndarray:
-        return np.take(array, columns.ravel(), axis=1).reshape(samples, count, -1).transpose(1, 0, 2)
 
     events: list[list[Event]] = [[] for _ in range(count)]
     for event in batch.events:
@@ -258,8 +257,8 @@ def simulate_variants(
         displacement=split(batch.displacement, n),
         velocity=split(batch.velocity, n),
         acceleration=split(batch.acceleration, n),
-        deflection=pick(batch.deflection),
-        force=pick(batch.force),
+        deflection=split(batch.deflection, len(element_ids)),
+        force=split(batch.force, len(element_ids)),
         events=events,
         status=batch.status,
         message=batch.message,
