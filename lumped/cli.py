@@ -164,7 +164,20 @@ def _load(path: str):
 
 
 def _print_json(data) -> None:
-    print(json.dumps(data, indent=2, allow_nan=True))
+    """``data`` as strict JSON (RFC 8259): an infinite number (a stepper without a step
+    limit) is the string "Infinity" (or "-Infinity"), which ``float()`` and
+    JavaScript's ``Number()`` read back; not a number is null."""
+    print(json.dumps(_strict_json(data), indent=2, allow_nan=False))
+
+
+def _strict_json(value):
+    if isinstance(value, float) and not math.isfinite(value):
+        return None if math.isnan(value) else ("Infinity" if value > 0 else "-Infinity")
+    if isinstance(value, dict):
+        return {key: _strict_json(item) for key, item in value.items()}
+    if isinstance(value, list | tuple):
+        return [_strict_json(item) for item in value]
+    return value
 
 
 def cmd_show(args) -> int:

@@ -211,7 +211,7 @@ class StepCheck:
 
 
 def _json_number(value):
-    """inf stays inf (JSON ``Infinity``, read back by Python's json); NaN becomes null."""
+    """inf stays inf (the command line writes it as the string "Infinity"); NaN becomes null."""
     if isinstance(value, float) and math.isnan(value):
         return None
     return value

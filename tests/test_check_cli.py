@@ -106,10 +106,14 @@ def sdof_file(path, mass, omega, zeta, run=""):
     return path
 
 
+def _refuse_constant(name):
+    raise ValueError(f"{name} is not JSON (RFC 8259)")
+
+
 def _check_json(*args):
     result = run_cli("check", *args, "--json")
     assert "Traceback" not in result.stderr
-    return result.returncode, json.loads(result.stdout)
+    return result.returncode, json.loads(result.stdout, parse_constant=_refuse_constant)
 
 
 # ---------------------------------------------------------------- JSON keys and values
@@ -190,7 +194,9 @@ def test_unconditionally_stable_stepper_reports_no_limit(tmp_path):
     path = sdof_file(tmp_path / "sdof.toml", 3.0, TWO_PI * 40.0, 0.05)
     code, data = _check_json(path, "--stepper", "trapezoid", "--dt", "50ms", "--duration", "10s")
     assert code == 0 and data["stable"] is True
-    assert math.isinf(data["max_stable_dt"]) and data["limiting_mode"] is None
+    # Strict JSON has no infinity: the string "Infinity", which float() reads back.
+    assert data["max_stable_dt"] == "Infinity" and math.isinf(float(data["max_stable_dt"]))
+    assert data["limiting_mode"] is None
 
 
 def test_newmark_parameters_reach_the_check(tmp_path):
