@@ -1,7 +1,9 @@
 """The ``lumped`` command line.
 
 Exit codes: 0 done; 1 ``check`` found the run unstable; 2 bad file or option (one
-line per problem on stderr, never a traceback); 3 a run that diverged.
+line per problem on stderr, never a traceback); 3 a run that diverged; 141 the
+reader of stdout stopped before the answer was written (``| head``), as for a
+program stopped by SIGPIPE.
 ``--json`` prints a machine-readable answer on stdout, also when the exit code is not 0.
 """
 
@@ -20,6 +22,7 @@ from lumped.errors import LumpedError
 __all__ = ["main"]
 
 EXIT_OK, EXIT_UNSTABLE, EXIT_BAD_INPUT, EXIT_DIVERGED = 0, 1, 2, 3
+EXIT_BROKEN_PIPE = 128 + 13  # what a shell reports for a program stopped by SIGPIPE
 
 
 class UsageError(Exception):
@@ -151,7 +154,14 @@ def main(argv: list[str] | None = None) -> int:
         print("lumped: interrupted", file=sys.stderr)
         return 130
     except BrokenPipeError:
-        return EXIT_OK
+        # Not all was written: say so in the exit code, and point stdout at the null
+        # device so that the interpreter's last flush stays quiet (Python docs,
+        # "Note on SIGPIPE").
+        try:
+            os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        except (OSError, ValueError):  # stdout is no file (captured in this process)
+            pass
+        return EXIT_BROKEN_PIPE
 
 
 # --------------------------------------------------------------------------- commands

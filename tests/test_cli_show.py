@@ -218,3 +218,24 @@ def test_real_process_good_and_bad_file(tmp_path):
     option = python_m_lumped("show", QUARTER_CAR, "--frobnicate", cwd=tmp_path)
     assert option.returncode == 2 and "Traceback" not in option.stderr
     assert len(option.stderr.splitlines()) == 1
+
+
+def test_a_reader_that_stops_early_gets_exit_141_and_no_traceback(tmp_path):
+    # `lumped show big.toml | head -1`: the answer (far more than a pipe holds) is cut
+    # off, which the exit code says, as for a program stopped by SIGPIPE (128 + 13,
+    # POSIX shells' convention — common practice); stderr stays quiet.
+    bodies = 3000
+    lines = ['format = "lumped/1"', 'name = "long chain (invented)"', "[supports.ground]"]
+    for i in range(bodies):
+        lines += [f"[bodies.b{i}]", 'mass = "1 kg"', f"[springs.k{i}]",
+                  f'between = ["{"ground" if i == 0 else f"b{i - 1}"}", "b{i}"]', 'stiffness = "1 kN/m"']  # fmt: skip
+    path = tmp_path / "chain.toml"
+    path.write_text("\n".join(lines), encoding="utf-8")
+    env = {k: v for k, v in os.environ.items() if not k.startswith("PYTHON")}
+    process = subprocess.Popen([sys.executable, "-m", "lumped", "show", str(path)], stdout=subprocess.PIPE,
+                               stderr=subprocess.PIPE, cwd=tmp_path, env=env)  # fmt: skip
+    assert process.stdout.readline()
+    process.stdout.close()
+    stderr = process.stderr.read().decode()
+    assert process.wait(timeout=120) == 141
+    assert stderr == ""
