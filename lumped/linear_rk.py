@@ -45,7 +45,7 @@ from lumped.float_mode import flush_subnormals, restore_float_mode
 from lumped.kernels import body_accelerations, stage_time
 from lumped.signal_kernels import HOT, force_value, signal_span, support_motion
 
-__all__ = ["Lanes", "lanes_of", "RKMaps", "rk_maps", "FreeMaps", "free_maps", "free_runs", "free_chunk", "free_work", "input_slots", "input_rows", "chunk_kernels", "is_compiled", "SPECIALISE_STEPS", "AFFINE_RK_LIMIT", "LANE_BLOCK", "FREE_LEAST_STEPS", "FREE_LEAST_WORK"]
+__all__ = ["Lanes", "lanes_of", "RKMaps", "rk_maps", "FreeMaps", "free_maps", "free_runs", "free_chunk", "free_work", "input_slots", "input_rows", "chunk_kernels", "is_compiled", "SPECIALISE_STEPS", "AFFINE_RK_LIMIT", "LANE_BLOCK", "FREE_LEAST_STEPS"]
 
 #: Bodies per lane up to which explicit Runge–Kutta runs of linear systems take the
 #: affine map (its cost grows as the square of the state; the element loop's as
@@ -58,12 +58,8 @@ LANE_BLOCK = 16
 #: kernel saves some 0.1 µs per lane-step).
 SPECIALISE_STEPS = 10**8
 #: Steps of free response (no input acting) from which a run joins them into one map
-#: per sample interval (:func:`free_maps`) instead of stepping them one by one; and
-#: the least lane-steps per interval of a block for which that pays (steps between
-#: samples × lanes up to :data:`LANE_BLOCK`: a joined interval of a block costs about
-#: as much as 16 lane-steps of the step-by-step kernel, measured on the corner).
+#: per sample interval (:func:`free_maps`) instead of stepping them one by one.
 FREE_LEAST_STEPS = 64
-FREE_LEAST_WORK = 16
 #: The chunk kernel's sums may be evaluated in any order (and with fused
 #: multiply-adds); results differ from the element-loop kernel's by rounding only.
 REORDERED = dict(HOT, fastmath={"reassoc", "contract"})
@@ -299,11 +295,11 @@ def rk_maps(lanes: Lanes, a: np.ndarray, b: np.ndarray, stage_col: np.ndarray, c
 
 @dataclass(frozen=True)
 class FreeMaps:
-    """``every`` steps of free response (no input acting) as one map, for
-    :func:`free_chunk`, the lane index innermost: z after = ``phi`` z (2n, 2n, count);
-    the energy of the interval of rate ``rates[r]``, Σₜ ``energy[r, t]`` z_a z_b over
-    the pairs (a, b) = (``first[t]``, ``second[t]``), a ≤ b; the acceleration at its
-    end ``acc`` z (n, 2n, count)."""
+    """``every`` steps of free response (no input acting) as one map, the lane index
+    innermost: z after = ``phi`` z (2n, 2n, count); the energy of the interval of rate
+    p, Σₜ ``energy[p, t]`` z_a z_b over the pairs (a, b) = (``first[t]``,
+    ``second[t]``), a ≤ b (3, pairs, count; ``rates`` those not zero); the
+    acceleration at its end ``acc`` z (n, 2n, count)."""
 
     every: int
     phi: np.ndarray
@@ -341,25 +337,23 @@ def free_maps(maps: RKMaps, every: int) -> FreeMaps:
     def innermost(x):
         return np.ascontiguousarray(np.moveaxis(x, 0, -1))
 
-    return FreeMaps(every, innermost(phi), innermost(pairs[:, rates]), first.astype(np.int64),
+    return FreeMaps(every, innermost(phi), innermost(pairs), first.astype(np.int64),
                     second.astype(np.int64), rates.astype(np.int64), innermost(maps.free_acc))  # fmt: skip
 
 
-def free_runs(W: np.ndarray, k0: int, nsteps: int, every: int, least: int) -> list[tuple[int, int]]:
-    """The stretches of steps k0 … k0+nsteps−1 where no input acts (columns of the
-    inputs W of :func:`input_rows` all zero) made of whole sample intervals (global
-    steps i·every … (i+1)·every − 1), at least ``least`` steps long: (first step,
+def free_runs(window: tuple[int, int], k0: int, nsteps: int, every: int, least: int) -> list[tuple[int, int]]:
+    """The stretches of steps k0 … k0+nsteps−1 outside the ``window`` of
+    :func:`input_rows` (where no input acts), made of whole sample intervals (global
+    steps i·every … (i+1)·every − 1) and at least ``least`` steps long: (first step,
     intervals) each."""
-    first = -(-k0 // every) * every
-    whole = (k0 + nsteps - first) // every
-    if whole < 1 or whole * every < least:
-        return []
-    active = W[:, first - k0 : first - k0 + whole * every].any(axis=0).reshape(whole, every).any(axis=1)
-    edges = np.flatnonzero(np.diff(np.concatenate([[1], active.view(np.int8), [1]])))
+    first, end = window
+    quiet = [(k0, k0 + nsteps)] if first >= end else [(k0, k0 + first), (k0 + end, k0 + nsteps)]
     runs = []
-    for start, end in zip(edges[::2], edges[1::2], strict=True):
-        if (end - start) * every >= least:
-            runs.append((first + int(start) * every, int(end - start)))
+    for start, stop in quiet:
+        start = -(-start // every) * every
+        intervals = (stop - start) // every
+        if intervals > 0 and intervals * every >= least:
+            runs.append((start, intervals))
     return runs
 
 
@@ -401,7 +395,7 @@ def free_chunk(maps_phi, maps_energy, first, second, rates, acc, z, work, energy
             for r in range(nr):
                 gains[r, lane] = 0.0
                 for t in range(pairs):
-                    form[r, t, lane] = maps_energy[r, t, low + lane] if inside else 0.0
+                    form[r, t, lane] = maps_energy[rates[r], t, low + lane] if inside else 0.0
         for i in range(intervals):
             for r in range(nr):
                 for t in range(pairs):
@@ -498,10 +492,12 @@ def input_rows(program, clock, k0, nsteps, h, slots, W):
     is input b of step k0 + j (``slots`` from :func:`input_slots`). One input at a time,
     in a tight loop over the steps; a support's signal is evaluated only over the
     steps its span (:func:`lumped.signal_kernels.signal_span`) may reach, with a step
-    to spare on either side, and is zero elsewhere."""
+    to spare on either side, and is zero elsewhere. Returns (first, end): every
+    input is zero outside steps k0 + first … k0 + end − 1 (first ≥ end: everywhere)."""
     kind, p, lo, hi, data, support_signal, support_delay, force_signal = program
     ns = support_signal.shape[0]
     base, grid, offsets = clock
+    window_first, window_end = nsteps, 0
     for c in range(slots.shape[0]):
         for s in range(ns):
             bu, bd, ba = slots[c, s], slots[c, ns + s], slots[c, 2 * ns + s]
@@ -520,6 +516,8 @@ def input_rows(program, clock, k0, nsteps, h, slots, W):
                     W[b, end:nsteps] = 0.0
             if bu < 0 and bd < 0 and ba < 0:
                 continue
+            if first < end:
+                window_first, window_end = min(window_first, first), max(window_end, end)
             for j in range(first, end):
                 u, ud, udd = support_motion(stage_time(clock, k0 + j, h, c), program, s)
                 if bu >= 0:
@@ -531,8 +529,10 @@ def input_rows(program, clock, k0, nsteps, h, slots, W):
         for f in range(force_signal.shape[0]):
             b = slots[c, 3 * ns + f]
             if b >= 0:
+                window_first, window_end = 0, nsteps
                 for j in range(nsteps):
                     W[b, j] = force_value(stage_time(clock, k0 + j, h, c), program, f)
+    return window_first, window_end
 
 
 def affine_rk_work(maps: RKMaps, lanes: Lanes, steps: int, every: int) -> tuple:
@@ -555,7 +555,7 @@ def affine_rk_work(maps: RKMaps, lanes: Lanes, steps: int, every: int) -> tuple:
 
 
 def chunk_kernels(nz: int, inputs: tuple[tuple[int, int, int], ...], rates: tuple[int, ...]):
-    """The compiled chunk kernels ``(one, lanes)`` for lanes of state size ``nz``
+    """The compiled chunk kernels ``(one, lanes, free_one)`` for lanes of state size ``nz``
     reading ``inputs`` and integrating ``rates`` (see :class:`RKMaps`): generated
     Python with every sum written out at constant offsets, compiled by numba on first
     use and cached on disk (:func:`_generated_module`). Signatures::
@@ -564,7 +564,9 @@ def chunk_kernels(nz: int, inputs: tuple[tuple[int, int, int], ...], rates: tupl
             out_every, out_q, out_v, out_a, out_e, out_step, n_out, q_limit)
         lanes(step, sample, lane, sums, energy, k0, nsteps, W, snap, total,
               out_every, out_q, out_v, out_a, out_e, out_step, n_out, q_limit)
-            -> (status, steps done, samples written)
+        free_one(phi, energy_form, acc, z, energy, k0, intervals,
+                 out_every, out_q, out_v, out_a, out_e, out_step, n_out, q_limit)
+            -> (status, steps or intervals done, samples written)
 
     Both advance the lanes (the :func:`blocked` state ``lane``) ``nsteps`` steps from
     global step k0, reading the inputs W of :func:`input_rows`. Samples are written
@@ -582,16 +584,20 @@ def chunk_kernels(nz: int, inputs: tuple[tuple[int, int, int], ...], rates: tupl
     ``one`` stops there (the step is not sampled); ``lanes`` stops its block and limits
     the blocks after it, and the caller runs the chunk again from its start to the
     returned step count, so that every lane ends at the same step.
+
+    ``free_one`` is :func:`free_chunk` for a single lane (z: 2n × 1; the maps of
+    :func:`free_maps`) written out, the maps and the state in local variables: it
+    stops before an interval that ends beyond ``q_limit``, z and ``energy`` at its start.
     """
     key = (nz, inputs, rates)
     if key not in _KERNELS:
         module = _generated_module(_kernel_source(nz, inputs, rates))
-        _KERNELS[key] = module.one, module.lanes
+        _KERNELS[key] = module.one, module.lanes, module.free_one
     return _KERNELS[key]
 
 
 def is_compiled(nz: int, inputs: tuple[tuple[int, int, int], ...], rates: tuple[int, ...], function: str) -> bool:
-    """True when the generated kernel ``function`` ("one" or "lanes") for this
+    """True when the generated kernel ``function`` ("one", "lanes" or "free_one") for this
     structure is in numba's on-disk cache already (a first run then costs no compile)."""
     if (nz, inputs, rates, function) in _COMPILED:
         return True
@@ -727,7 +733,29 @@ def _kernel_source(nz: int, inputs, rates) -> str:
              + sample_lines(lane_sample, "column + "))]
         + [f"out_e[m, {p}] += e{p}" for p in range(3)]
     )  # fmt: skip
+    # One lane's free response (:class:`FreeMaps`): maps f… (Φ), h… (energy forms)
+    # and s… (acceleration) and the state in local variables.
+    free_setup = (
+        [f"f{a * nz + b} = phi[{a}, {b}, 0]" for a in range(nz) for b in range(nz)]
+        + [f"h{p}_{t} = form[{p}, {t}, 0]" for p in rates for t in range(len(pairs_z))]
+        + [f"s{r * nz + b} = acc[{r}, {b}, 0]" for r in range(n) for b in range(nz)]
+        + [f"z{a} = z[{a}, 0]" for a in range(nz)] + [f"e{p} = energy[{p}]" for p in range(3)]
+    )  # fmt: skip
+    free_step = (
+        [f"q{p} = {total([f'h{p}_{t} * z{a} * z{b}' for t, (a, b) in enumerate(pairs_z)])}" for p in rates]
+        + [f"y{r} = {total([f'f{r * nz + a} * z{a}' for a in range(nz)])}" for r in range(nz)]
+        + ["fine = True"] + [f"fine &= abs(y{r}) <= q_limit" for r in range(n)]
+    )  # fmt: skip
+    free_take = [f"z{r} = y{r}" for r in range(nz)] + [f"e{p} += q{p}" for p in rates]
+    free_sample = (
+        [f"out_q[m, {r}] = z{r}" for r in range(n)] + [f"out_v[m, {r}] = z{n + r}" for r in range(n)]
+        + [f"out_a[m, {r}] = {total([f's{r * nz + b} * z{b}' for b in range(nz)])}" for r in range(n)]
+        + [f"out_e[m, {p}] = e{p}" for p in range(3)]
+    )  # fmt: skip
+    free_store = [f"z[{a}, 0] = z{a}" for a in range(nz)] + [f"energy[{p}] = e{p}" for p in range(3)]
     return _TEMPLATE.format(
+        free_setup=lines(free_setup, 4), free_step=lines(free_step, 8), free_take=lines(free_take, 8),
+        free_sample=lines(free_sample, 12), free_store=lines(free_store, 4),
         nz=nz, kept=kept, block=block, n=n, sum_rows=(len(pairs_z) + nz * kept) * block,
         step_rows=step_rows * block, sample_rows=(ww_first + 3 * len(pairs_w)) * block,
         setup=lines(setup, 4), one_body=lines(body, 8), store=lines(store, 4),
@@ -857,6 +885,31 @@ def lanes(step, sample, lane, sums, energy, k0, nsteps, W, snap, total,
     energy[2] += e2
     restore_float_mode(mode)
     return status, limit, m
+
+
+@njit(**REORDERED)
+def free_one(phi, form, acc, z, energy, k0, intervals, every,
+             out_q, out_v, out_a, out_e, out_step, n_out, q_limit):
+    mode = flush_subnormals()
+    capacity = out_q.shape[0]
+{free_setup}
+    status = 0
+    done = intervals
+    m = n_out
+    for i in range(intervals):
+{free_step}
+        if not fine:
+            status = 1
+            done = i
+            break
+{free_take}
+        if m < capacity:
+{free_sample}
+            out_step[m] = k0 + (i + 1) * every
+            m += 1
+{free_store}
+    restore_float_mode(mode)
+    return status, done, m
 '''
 
 

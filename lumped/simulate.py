@@ -32,7 +32,6 @@ from lumped.excitation import Signal, signal_for
 from lumped.kernels import LEFT_LIMIT
 from lumped.linear_rk import (
     FREE_LEAST_STEPS,
-    FREE_LEAST_WORK,
     LANE_BLOCK,
     SPECIALISE_STEPS,
     Lanes,
@@ -788,16 +787,17 @@ class _Engine:
             return memo[key]
 
         maps = maps_at(self.h)
-        if self.specialise is None and self.steps * lanes.count < SPECIALISE_STEPS and not is_compiled(
-            2 * n, maps.inputs, maps.rates, "one" if lanes.count == 1 else "lanes"
-        ):
+        may_compile = self.specialise is True or self.steps * lanes.count >= SPECIALISE_STEPS
+        if not may_compile and not is_compiled(2 * n, maps.inputs, maps.rates, "one" if lanes.count == 1 else "lanes"):
             return None
+        # Free stretches: one lane's kernel is generated too (compiled when the others may be).
+        free_ready = lanes.count > 1 or may_compile or is_compiled(2 * n, maps.inputs, maps.rates, "free_one")
 
         def stepwise(start, count, h, clock, fresh):
             """Steps start … start+count−1 one by one in the generated kernel; the
             inputs W are made first when ``fresh``."""
             maps = maps_at(h)
-            one, many = chunk_kernels(2 * n, maps.inputs, maps.rates)
+            one, many, _ = chunk_kernels(2 * n, maps.inputs, maps.rates)
             slots, lane, inputs, scratch = work[h]
             if fresh:
                 input_rows(lanes.program, clock, start, count, h, slots, inputs)
@@ -831,6 +831,13 @@ class _Engine:
                 memo[key] = free_maps(maps_at(h), self.every)
             joined = memo[key]
             z = np.concatenate([self.q.reshape(lanes.count, n).T, self.v.reshape(lanes.count, n).T])
+            if lanes.count == 1:  # written out for the structure; stops before an interval that diverges
+                maps = maps_at(h)
+                free_one = chunk_kernels(2 * n, maps.inputs, maps.rates)[2]
+                status, done, self.count = free_one(joined.phi, joined.energy, joined.acc, z, self.energy, first,
+                                                    intervals, *self._output_buffers(), self.q_limit)  # fmt: skip
+                self.q, self.v = z[:n, 0].copy(), z[n:, 0].copy()
+                return status, done
             start_z, start_energy, start_count = z.copy(), self.energy.copy(), self.count
 
             def chunk(intervals):
@@ -857,10 +864,9 @@ class _Engine:
                 self._finish.append(lambda: _keep_spare(self.prepared.spare, key, arrays))
                 work[h] = input_slots(maps.inputs, columns, len(lanes.program[5]), len(lanes.program[7])), *arrays
             slots, _, inputs, _ = work[h]
-            input_rows(lanes.program, clock, start, count, h, slots, inputs)
+            window = input_rows(lanes.program, clock, start, count, h, slots, inputs)
             # Stretches where no input acts, a whole sample interval at a time.
-            pays = h == self.h and self.every * min(lanes.count, LANE_BLOCK) >= FREE_LEAST_WORK
-            runs = free_runs(inputs, start, count, self.every, FREE_LEAST_STEPS) if pays else []
+            runs = free_runs(window, start, count, self.every, FREE_LEAST_STEPS) if h == self.h and free_ready else []
             if not runs:
                 return stepwise(start, count, h, clock, fresh=False)
             k = start

@@ -204,17 +204,26 @@ def _free_corner(**body_changes) -> lumped.System:
 
 @pytest.fixture
 def free_calls(monkeypatch):
-    """Counts the calls of the free-response kernel (so a test knows it ran)."""
+    """The intervals of each call of the free-response kernels, many lanes' and one
+    lane's (so a test knows they ran)."""
     import lumped.simulate as engine
 
     calls = []
 
-    def counted(*args):
-        calls.append(args[10])  # intervals
-        return kernel(*args)
+    def counted(kernel, position):
+        def call(*args):
+            calls.append(args[position])
+            return kernel(*args)
 
-    kernel = engine.free_chunk
-    monkeypatch.setattr(engine, "free_chunk", counted)
+        return call
+
+    def kernels_counted(*key):
+        one, lanes, free_one = chunk_kernels(*key)
+        return one, lanes, counted(free_one, 6)
+
+    chunk_kernels = engine.chunk_kernels
+    monkeypatch.setattr(engine, "free_chunk", counted(engine.free_chunk, 10))
+    monkeypatch.setattr(engine, "chunk_kernels", kernels_counted)
     return calls
 
 
