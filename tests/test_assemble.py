@@ -567,3 +567,25 @@ def test_nonlinear_tables_list_exactly_the_nonlinear_items(name):
         for s in system.springs.values()
         if s.acts != "both"
     }
+
+
+@pytest.mark.parametrize("name", DEMOS)
+def test_the_system_graph_is_what_networkx_builds_from_the_same_items(name, monkeypatch):
+    # The graph's edges are written into networkx's adjacency directly (for speed);
+    # they must be what networkx's own add_edges_from builds from the same items: the
+    # same nodes, edges, keys and data, one key dict shared by both directions
+    # (networkx's MultiGraph structure is the reference here).
+    import networkx as nx
+
+    import lumped.model
+
+    system = lumped.load(lumped.demo_path(name))
+    monkeypatch.setattr(lumped.model, "_add_edges", lambda graph, edges: graph.add_edges_from(edges))
+    reference = lumped.model.build_graph(system)
+    graph = system.graph
+    assert graph.graph == reference.graph
+    assert list(graph.nodes(data=True)) == list(reference.nodes(data=True))
+    assert list(graph.edges(keys=True, data=True)) == list(reference.edges(keys=True, data=True))
+    assert nx.utils.graphs_equal(graph, reference)
+    for u, v in reference.edges():
+        assert graph._adj[u][v] is graph._adj[v][u]
