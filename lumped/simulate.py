@@ -738,10 +738,6 @@ class _Engine:
             self.offsets = np.unique(np.concatenate([c, [1.0]]))
             stage_col = np.searchsorted(self.offsets, c).astype(np.int64)
             end_col = int(np.searchsorted(self.offsets, 1.0))
-            if self.lanes is not None:
-                self._kernel = self._affine_rk_kernel(a, b, stage_col, end_col)
-                if self._kernel is not None:
-                    return
             work = kernels.rk_work(len(b), self.m.n, self.inputs.program, self.offsets, len(self.watch_element))
 
             def kernel(start, n, h, clock):
@@ -751,6 +747,9 @@ class _Engine:
                     *self._output_buffers(), *self._event_buffers(), self.q_limit,
                 )  # fmt: skip
                 return status, done
+
+            if self.lanes is not None:
+                kernel = self._affine_rk_kernel(a, b, stage_col, end_col, kernel)
 
         elif isinstance(stepper, SecondOrderStepper) and stepper.scheme == "symplectic-euler":
             self.offsets = np.array([0.0, 1.0])
@@ -772,11 +771,12 @@ class _Engine:
                 kernel = self._affine_kernel()
         self._kernel = kernel
 
-    def _affine_rk_kernel(self, a, b, stage_col, end_col):
+    def _affine_rk_kernel(self, a, b, stage_col, end_col, general):
         """An explicit Runge–Kutta stepper on a small linear system (or on lanes of
         variants): one affine map per step (:mod:`lumped.linear_rk`), made once per
-        step length; None when the run should not compile its kernel (see
-        ``specialise`` of :func:`simulate`)."""
+        step length, in the generated kernels — or, when the run should not compile
+        them (see ``specialise`` of :func:`simulate`), the element-loop kernel
+        ``general``; either way with the free stretches joined per sample interval."""
         lanes, memo, work = self.lanes, self.prepared.maps, {}
         n, columns = lanes.n, len(self.offsets)
 
@@ -788,14 +788,18 @@ class _Engine:
 
         maps = maps_at(self.h)
         may_compile = self.specialise is True or self.steps * lanes.count >= SPECIALISE_STEPS
-        if not may_compile and not is_compiled(2 * n, maps.inputs, maps.rates, "one" if lanes.count == 1 else "lanes"):
-            return None
-        # Free stretches: one lane's kernel is generated too (compiled when the others may be).
-        free_ready = lanes.count > 1 or may_compile or is_compiled(2 * n, maps.inputs, maps.rates, "free_one")
+        generated = may_compile or is_compiled(2 * n, maps.inputs, maps.rates, "one" if lanes.count == 1 else "lanes")
+        # One lane's free stretches in a generated kernel too (when the others are);
+        # else in free_chunk, which pays for one lane from two steps per sample.
+        written_out = generated and (lanes.count > 1 or may_compile
+                                     or is_compiled(2 * n, maps.inputs, maps.rates, "free_one"))  # fmt: skip
+        free_ready = written_out or lanes.count > 1 or self.every >= 2
 
         def stepwise(start, count, h, clock, fresh):
-            """Steps start … start+count−1 one by one in the generated kernel; the
-            inputs W are made first when ``fresh``."""
+            """Steps start … start+count−1 one by one in the generated kernel (the
+            inputs W made first when ``fresh``), or in ``general``."""
+            if not generated:
+                return general(start, count, h, clock)
             maps = maps_at(h)
             one, many, _ = chunk_kernels(2 * n, maps.inputs, maps.rates)
             slots, lane, inputs, scratch = work[h]
@@ -831,7 +835,7 @@ class _Engine:
                 memo[key] = free_maps(maps_at(h), self.every)
             joined = memo[key]
             z = np.concatenate([self.q.reshape(lanes.count, n).T, self.v.reshape(lanes.count, n).T])
-            if lanes.count == 1:  # written out for the structure; stops before an interval that diverges
+            if lanes.count == 1 and written_out:  # stops before an interval that diverges
                 maps = maps_at(h)
                 free_one = chunk_kernels(2 * n, maps.inputs, maps.rates)[2]
                 status, done, self.count = free_one(joined.phi, joined.energy, joined.acc, z, self.energy, first,
@@ -854,15 +858,20 @@ class _Engine:
 
         def kernel(start, count, h, clock):
             maps = maps_at(h)
-            try:
-                chunk_kernels(2 * n, maps.inputs, maps.rates)
-            except RuntimeError as exc:  # no place to write the generated kernel
-                raise RunError(str(exc)) from None
+            if generated:
+                try:
+                    chunk_kernels(2 * n, maps.inputs, maps.rates)
+                except RuntimeError as exc:  # no place to write the generated kernel
+                    raise RunError(str(exc)) from None
             if h not in work:
-                key = (maps.inputs, maps.rates, lanes.count, min(CHUNK_STEPS, self.steps), self.every)
-                arrays = self.prepared.spare.pop(key, None) or affine_rk_work(maps, lanes, *key[3:])
-                self._finish.append(lambda: _keep_spare(self.prepared.spare, key, arrays))
-                work[h] = input_slots(maps.inputs, columns, len(lanes.program[5]), len(lanes.program[7])), *arrays
+                slots = input_slots(maps.inputs, columns, len(lanes.program[5]), len(lanes.program[7]))
+                if generated:
+                    key = (maps.inputs, maps.rates, lanes.count, min(CHUNK_STEPS, self.steps), self.every)
+                    arrays = self.prepared.spare.pop(key, None) or affine_rk_work(maps, lanes, *key[3:])
+                    self._finish.append(lambda: _keep_spare(self.prepared.spare, key, arrays))
+                else:  # the inputs only, for their window
+                    arrays = None, np.zeros((len(maps.inputs), min(CHUNK_STEPS, self.steps))), None
+                work[h] = slots, *arrays
             slots, _, inputs, _ = work[h]
             window = input_rows(lanes.program, clock, start, count, h, slots, inputs)
             # Stretches where no input acts, a whole sample interval at a time.
