@@ -1007,9 +1007,11 @@ def test_output_rate_samples_every_round_steps(rate, every):
     np.testing.assert_allclose(result.time[:-1], steps * dt, rtol=0, atol=1e-15)
     assert result.time[-1] == duration
     # The kept samples are the full run's samples at those steps: decimation, not
-    # interpolation.
-    np.testing.assert_array_equal(result.displacement[:-1], full.displacement[steps])
-    np.testing.assert_array_equal(result.displacement[-1], full.displacement[-1])
+    # interpolation. Where no input acts, the steps between samples are joined into
+    # one map (the same RK4 steps), so they agree to rounding rather than bit for bit.
+    rounding = 1e-12 * np.max(np.abs(full.displacement))
+    np.testing.assert_allclose(result.displacement[:-1], full.displacement[steps], rtol=0, atol=rounding)
+    np.testing.assert_allclose(result.displacement[-1], full.displacement[-1], rtol=0, atol=rounding)
     by_count = simulate(system, "rk4", dt, duration, output_every=every)
     np.testing.assert_array_equal(by_count.time, result.time)
 
