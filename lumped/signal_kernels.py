@@ -201,9 +201,20 @@ def input_values(t, program, row, U, Ud, Udd, FF):
 
 @njit(**HOT)
 def input_series(t, program, U, Ud, Udd, FF):
-    """:func:`input_values` at every time of ``t`` (1-D), one row each."""
-    for i in range(t.shape[0]):
-        input_values(t[i], program, i, U, Ud, Udd, FF)
+    """:func:`input_values` at every time of ``t`` (1-D), one row each; a support's
+    signal is evaluated only within its span (:func:`signal_span`), zero elsewhere."""
+    kind, p, _, _, _, support_signal, support_delay, force_signal = program
+    for s in range(support_signal.shape[0]):
+        g = support_signal[s]
+        on, off = signal_span(kind[g], p, g) if g >= 0 else (math.inf, -math.inf)
+        for i in range(t.shape[0]):
+            if on <= t[i] - support_delay[s] <= off:
+                U[i, s], Ud[i, s], Udd[i, s] = support_motion(t[i], program, s)
+            else:
+                U[i, s], Ud[i, s], Udd[i, s] = 0.0, 0.0, 0.0
+    for f in range(force_signal.shape[0]):
+        for i in range(t.shape[0]):
+            FF[i, f] = force_value(t[i], program, f)
 
 
 def encoded(signals) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:

@@ -134,18 +134,44 @@ def test_nonlinear_and_larger_systems_keep_the_element_loop():
     assert prepare(chain).lanes is None
 
 
-@pytest.mark.parametrize(
-    "signal",
-    [
-        lumped.BumpInput("sig", 0.05, 0.9, 5.0, time=0.2),
-        lumped.StepInput("sig", 0.02, time=0.31),
-        lumped.SweepInput("sig", 0.01, 1.0, 12.0, duration=0.4),
-        lumped.HarmonicInput("sig", 0.01, 3.0, 0.4),
-        lumped.TableInput("sig", "sig.csv", (0.0, 0.1, 0.35, 0.6), (0.0, 0.01, -0.02, 0.0)),
-        lumped.RoadInput("sig", "C", 20.0, seed=3),
-    ],
-    ids=lambda s: s.kind,
-)
+SIGNALS = [
+    lumped.BumpInput("sig", 0.05, 0.9, 5.0, time=0.2),
+    lumped.StepInput("sig", 0.02, time=0.31),
+    lumped.SweepInput("sig", 0.01, 1.0, 12.0, duration=0.4),
+    lumped.HarmonicInput("sig", 0.01, 3.0, 0.4),
+    lumped.TableInput("sig", "sig.csv", (0.0, 0.1, 0.35, 0.6), (0.0, 0.01, -0.02, 0.0)),
+    lumped.RoadInput("sig", "C", 20.0, seed=3),
+]
+
+
+def _two_supports(signal) -> lumped.System:
+    return lumped.System(
+        name="two supports (invented)",
+        bodies={"b": lumped.Body("b", 3.0)},
+        supports={"front": lumped.Support("front", "sig"), "rear": lumped.Support("rear", "sig", delay=0.13)},
+        springs={"kf": lumped.Spring("kf", ("front", "b"), 900.0), "kr": lumped.Spring("kr", ("rear", "b"), 900.0)},
+        inputs={"sig": signal},
+    )
+
+
+@pytest.mark.parametrize("signal", SIGNALS, ids=lambda s: s.kind)
+def test_inputs_at_sample_times_are_the_signals(signal):
+    # The supports' motion at output times is the signal itself (lumped.excitation
+    # evaluates it on its own), delayed per support — also at and just beside the ends
+    # of the span outside which it is not evaluated (a bump's passage, a sweep).
+    from lumped.excitation import signal_for
+
+    system = _two_supports(signal)
+    source, delays = signal_for(system, "sig"), np.array([0.0, 0.13])
+    edges = np.array([0.0, 0.2, 0.38, 0.31, 0.4, 0.33, 0.51, 0.53])
+    times = np.sort(np.concatenate([np.linspace(0.0, 1.2, 1201), edges, np.nextafter(edges, 1), np.nextafter(edges, -1)]))
+    u, ud, udd, _ = prepare(system).inputs.at(times)
+    for s in range(2):
+        for got, rate in ((u, source.value), (ud, source.rate), (udd, source.rate2)):
+            np.testing.assert_array_equal(got[:, s], rate(times - delays[s]), err_msg=f"support {s}")
+
+
+@pytest.mark.parametrize("signal", SIGNALS, ids=lambda s: s.kind)
 def test_chunk_inputs_are_the_signals_at_every_stage_time(signal):
     # Each row of a chunk's inputs is the signal itself (lumped.excitation evaluates it
     # on its own, array by array) at the stage time k·h + c·h, read LEFT_LIMIT·h early
@@ -155,13 +181,7 @@ def test_chunk_inputs_are_the_signals_at_every_stage_time(signal):
     from lumped.kernels import LEFT_LIMIT
     from lumped.linear_rk import input_rows, input_slots
 
-    system = lumped.System(
-        name="two supports (invented)",
-        bodies={"b": lumped.Body("b", 3.0)},
-        supports={"front": lumped.Support("front", "sig"), "rear": lumped.Support("rear", "sig", delay=0.13)},
-        springs={"kf": lumped.Spring("kf", ("front", "b"), 900.0), "kr": lumped.Spring("kr", ("rear", "b"), 900.0)},
-        inputs={"sig": signal},
-    )
+    system = _two_supports(signal)
     program = prepare(system).inputs.program
     h, steps, offsets = 1e-3, 250, np.array([0.0, 0.5, 1.0])
     inputs = tuple((c, kind, s) for c in range(3) for kind in (0, 1, 2) for s in range(2))
