@@ -677,6 +677,10 @@ class _Engine:
             self._store_current(k)
         for finish in self._finish:
             finish()
+        # The kernel's closures hold the engine: without them, its buffers are freed
+        # as soon as the run returns (else only by the cycle collector, later, and
+        # the next run's buffers would be fresh pages to fault in).
+        self._kernel, self._finish = None, []
         return self._result(status, message, k, verdict)
 
     def _time(self, k: int) -> float:

@@ -1261,3 +1261,33 @@ def test_a_run_leaves_numpys_page_advice_as_it_found_it():
         assert advise(before) is False
     finally:
         advise(before)
+
+
+@pytest.mark.parametrize("specialise", [True, False])
+def test_a_run_frees_its_engine_when_it_returns(specialise, monkeypatch):
+    # The engine's buffers go as soon as a run returns, without waiting for the cycle
+    # collector (else every run's buffers would be fresh memory); regression of the
+    # kernels' closures holding the engine.
+    import gc
+    import weakref
+
+    import lumped.simulate as engine
+
+    engines = []
+    make = engine._Engine.__init__
+
+    def recorded(self, *args, **kwargs):
+        engines.append(weakref.ref(self))
+        make(self, *args, **kwargs)
+
+    monkeypatch.setattr(engine._Engine, "__init__", recorded)
+    system = oscillator(1.0, 100.0, 0.1, x0=0.01)
+    enabled = gc.isenabled()
+    gc.disable()
+    try:
+        result = simulate(system, "rk4", 1e-3, 0.5, specialise=specialise, check=False)
+        assert engines[-1]() is None
+    finally:
+        if enabled:
+            gc.enable()
+    assert result.status == "completed"
