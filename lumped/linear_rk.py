@@ -486,14 +486,15 @@ def input_slots(inputs: tuple[tuple[int, int, int], ...], columns: int, supports
 
 
 @njit(**HOT)
-def input_rows(program, clock, k0, nsteps, h, slots, W):
+def input_rows(program, clock, k0, nsteps, h, slots, W, fill=True):
     """The inputs that the maps read (:attr:`RKMaps.inputs`) of steps k0 … k0+nsteps−1
     at their stage times, as :func:`lumped.kernels._step_inputs` reads them: W[b, j]
     is input b of step k0 + j (``slots`` from :func:`input_slots`). One input at a time,
     in a tight loop over the steps; a support's signal is evaluated only over the
     steps its span (:func:`lumped.signal_kernels.signal_span`) may reach, with a step
     to spare on either side, and is zero elsewhere. Returns (first, end): every
-    input is zero outside steps k0 + first … k0 + end − 1 (first ≥ end: everywhere)."""
+    input is zero outside steps k0 + first … k0 + end − 1 (first ≥ end: everywhere);
+    with ``fill`` False, only that (W is not written)."""
     kind, p, lo, hi, data, support_signal, support_delay, force_signal = program
     ns = support_signal.shape[0]
     base, grid, offsets = clock
@@ -510,14 +511,16 @@ def input_rows(program, clock, k0, nsteps, h, slots, W):
                 end = nsteps if off == math.inf else min(max(int(math.ceil((off - start) / grid)) + 2 - k0, first), nsteps)
             elif g >= 0:
                 end = nsteps
-            for b in (bu, bd, ba):
-                if b >= 0:
-                    W[b, :first] = 0.0
-                    W[b, end:nsteps] = 0.0
             if bu < 0 and bd < 0 and ba < 0:
                 continue
             if first < end:
                 window_first, window_end = min(window_first, first), max(window_end, end)
+            if not fill:
+                continue
+            for b in (bu, bd, ba):
+                if b >= 0:
+                    W[b, :first] = 0.0
+                    W[b, end:nsteps] = 0.0
             for j in range(first, end):
                 u, ud, udd = support_motion(stage_time(clock, k0 + j, h, c), program, s)
                 if bu >= 0:
@@ -530,7 +533,7 @@ def input_rows(program, clock, k0, nsteps, h, slots, W):
             b = slots[c, 3 * ns + f]
             if b >= 0:
                 window_first, window_end = 0, nsteps
-                for j in range(nsteps):
+                for j in range(nsteps if fill else 0):
                     W[b, j] = force_value(stage_time(clock, k0 + j, h, c), program, f)
     return window_first, window_end
 

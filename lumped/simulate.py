@@ -799,16 +799,15 @@ class _Engine:
                                      or is_compiled(2 * n, maps.inputs, maps.rates, "free_one"))  # fmt: skip
         free_ready = written_out or lanes.count > 1 or self.every >= 2
 
-        def stepwise(start, count, h, clock, fresh):
-            """Steps start … start+count−1 one by one in the generated kernel (the
-            inputs W made first when ``fresh``), or in ``general``."""
+        def stepwise(start, count, h, clock):
+            """Steps start … start+count−1 one by one in the generated kernel (their
+            inputs W made first), or in ``general``."""
             if not generated:
                 return general(start, count, h, clock)
             maps = maps_at(h)
             one, many, _ = chunk_kernels(2 * n, maps.inputs, maps.rates)
             slots, lane, inputs, scratch = work[h]
-            if fresh:
-                input_rows(lanes.program, clock, start, count, h, slots, inputs)
+            input_rows(lanes.program, clock, start, count, h, slots, inputs)
             if lanes.count == 1:
                 lane[: 2 * n * LANE_BLOCK : LANE_BLOCK] = np.concatenate([self.q, self.v])
                 status, done, samples = one(maps.step, maps.sample, lane, self.energy, start, count, inputs, *scratch,
@@ -877,15 +876,15 @@ class _Engine:
                     arrays = None, np.zeros((len(maps.inputs), min(CHUNK_STEPS, self.steps))), None
                 work[h] = slots, *arrays
             slots, _, inputs, _ = work[h]
-            window = input_rows(lanes.program, clock, start, count, h, slots, inputs)
             # Stretches where no input acts, a whole sample interval at a time.
+            window = input_rows(lanes.program, clock, start, count, h, slots, inputs, False)
             runs = free_runs(window, start, count, self.every, FREE_LEAST_STEPS) if h == self.h and free_ready else []
             if not runs:
-                return stepwise(start, count, h, clock, fresh=False)
+                return stepwise(start, count, h, clock)
             k = start
             for first, intervals in [*runs, (start + count, 0)]:
                 if first > k:
-                    status, done = stepwise(k, first - k, h, clock, fresh=True)
+                    status, done = stepwise(k, first - k, h, clock)
                     if status != kernels.OK:
                         return status, k - start + done
                     k = first
@@ -894,7 +893,7 @@ class _Engine:
                     k = first + done * self.every
                     if status != kernels.OK:  # the step-by-step kernel finds the step that diverged
                         rest = first + intervals * self.every - k
-                        status, done = stepwise(k, rest, h, clock, fresh=True)
+                        status, done = stepwise(k, rest, h, clock)
                         if status != kernels.OK:
                             return status, k - start + done
                         k += rest
