@@ -937,18 +937,47 @@ def _cache_directory() -> Path:
 
 def _generated_module(source: str):
     """Import ``source`` as a module kept in the cache directory (written atomically
-    under a name taken from its hash, so that numba's on-disk cache finds it again)."""
+    under a name taken from its hash, so that numba's on-disk cache finds it again).
+    A new module makes room: the directory keeps the :data:`KEPT_KERNELS` used last."""
     name = _module_name(source)
-    path = _cache_directory() / f"{name}.py"
+    directory = _cache_directory()
+    path = directory / f"{name}.py"
     if not path.exists() or path.read_text() != source:
-        handle, temporary = tempfile.mkstemp(dir=path.parent, suffix=".tmp")
+        handle, temporary = tempfile.mkstemp(dir=directory, suffix=".tmp")
         with os.fdopen(handle, "w") as file:
             file.write(source)
         os.replace(temporary, path)
+        _prune(directory, name)
     if name in sys.modules:
         return sys.modules[name]
+    try:  # when it was used last (not the source's time, which numba's cache checks)
+        path.with_suffix(".used").touch()
+    except OSError:
+        pass
     spec = importlib.util.spec_from_file_location(name, path)
     module = importlib.util.module_from_spec(spec)
     sys.modules[name] = module  # numba's cache finds the module again by its name
     spec.loader.exec_module(module)
     return module
+
+
+#: Generated modules the kernel cache directory keeps (with their compiled code).
+KEPT_KERNELS = 64
+
+
+def _prune(directory: Path, keep: str) -> None:
+    """Remove the generated modules of ``directory`` beyond the :data:`KEPT_KERNELS`
+    used last (``keep`` among them), with their compiled code; best effort."""
+
+    def last_used(module: Path) -> float:
+        marker = module.with_suffix(".used")
+        return (marker if marker.exists() else module).stat().st_mtime
+
+    try:
+        others = sorted((m for m in directory.glob("lumped_kernel_*.py") if m.stem != keep), key=last_used,
+                        reverse=True)  # fmt: skip
+        for stale in others[KEPT_KERNELS - 1 :]:
+            for file in (stale, stale.with_suffix(".used"), *(directory / "__pycache__").glob(f"{stale.stem}.*")):
+                file.unlink(missing_ok=True)
+    except OSError:
+        pass

@@ -341,3 +341,29 @@ def test_a_run_diverging_in_a_free_stretch_stops_at_the_step_by_step_kernels_ste
     assert joined.message == stepwise.message
     np.testing.assert_array_equal(joined.time, stepwise.time)
     assert _relative(joined.displacement, stepwise.displacement) < 1e-11
+
+
+def test_the_kernel_cache_keeps_the_modules_used_last(tmp_path, monkeypatch):
+    # A new generated module makes room in the cache directory: it keeps the
+    # KEPT_KERNELS modules used last, with their compiled code, and drops the rest.
+    import os
+
+    from lumped import linear_rk
+
+    monkeypatch.setenv("LUMPED_KERNEL_CACHE", str(tmp_path))
+    (tmp_path / "__pycache__").mkdir()
+    old = []
+    for i in range(linear_rk.KEPT_KERNELS + 5):
+        module = tmp_path / f"lumped_kernel_{i:016x}.py"
+        module.write_text("# stand-in\n")
+        compiled = tmp_path / "__pycache__" / f"{module.stem}.one-10.py311.nbi"
+        compiled.write_text("")
+        os.utime(module, (1e9 + i, 1e9 + i))  # module i used at time i
+        old.append((module, compiled))
+    module = linear_rk._generated_module(linear_rk._kernel_source(2, (), ()))
+    assert hasattr(module, "one")
+    kept = sorted(tmp_path.glob("lumped_kernel_*.py"))
+    assert len(kept) == linear_rk.KEPT_KERNELS
+    for i, (module_file, compiled) in enumerate(old):
+        gone = i < len(old) - (linear_rk.KEPT_KERNELS - 1)  # the least recently used
+        assert module_file.exists() != gone and compiled.exists() != gone, i
