@@ -31,6 +31,13 @@ def _columns(result):
     return names, data
 
 
+def _umask() -> int:
+    """The process's file-creation mask (read by setting it, then put back)."""
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
 def write_result(result, path: str | os.PathLike) -> Path:
     """Write ``result`` to ``path`` (.csv or .parquet), replacing it atomically."""
     path = Path(path)
@@ -55,6 +62,7 @@ def write_result(result, path: str | os.PathLike) -> Path:
             import pandas as pd
 
             pd.DataFrame(data, columns=names).to_parquet(tmp, index=False)
+        os.chmod(tmp, 0o666 & ~_umask())  # the temporary file's 0600 would be the output's
         os.replace(tmp, path)
     except OSError as exc:
         Path(tmp).unlink(missing_ok=True)

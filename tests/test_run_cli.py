@@ -162,6 +162,21 @@ def test_out_replaces_an_existing_file(seat_file, tmp_path):
     assert sorted(p.name for p in tmp_path.iterdir()) == ["run.csv", "seat.toml"]
 
 
+@pytest.mark.parametrize("suffix", [".csv", ".parquet"])
+def test_out_files_get_the_permissions_the_umask_gives(seat_file, tmp_path, suffix):
+    # An output file is shared as any new file is: mode 0666 less the umask (POSIX
+    # open(2) — common practice), not the atomic write's private 0600.
+    import os
+
+    out = tmp_path / f"run{suffix}"
+    previous = os.umask(0o022)
+    try:
+        assert main(["run", str(seat_file), "--out", str(out), "--quiet"]) == 0
+    finally:
+        os.umask(previous)
+    assert out.stat().st_mode & 0o777 == 0o644
+
+
 def test_diverged_run_exits_3_and_still_writes_its_samples(seat_file, tmp_path, capsys):
     out = tmp_path / "diverged.csv"
     code = main(["run", str(seat_file), "--stepper", "euler", "--dt", "0.1", "--duration", "20",
