@@ -262,6 +262,24 @@ def cmd_check(args) -> int:
     return EXIT_OK if verdict.stable else EXIT_UNSTABLE
 
 
+def _run_warnings(system, result) -> list[str]:
+    """What a reader of a run must know before trusting it: a step the step check
+    finds unstable, inputs too brief for the step."""
+    from lumped.excitation import brief_inputs
+
+    warnings = []
+    check = result.check
+    if check is not None and not check.stable:
+        limit = ("no positive step is stable" if check.max_stable_dt is None
+                 else f"stability limit {_seconds(check.max_stable_dt)}")  # fmt: skip
+        warnings.append(
+            f"the step check finds {result.stepper} unstable at dt = {_seconds(result.dt)} ({limit}): "
+            "the run can grow without bound, or look calm only because nothing excited the unstable mode; "
+            "`lumped check` explains"
+        )
+    return warnings + brief_inputs(system, result.dt)
+
+
 def cmd_run(args) -> int:
     from lumped.output import write_result
     from lumped.simulate import simulate
@@ -301,6 +319,7 @@ def cmd_run(args) -> int:
         "energy_balance_error": float(abs(result.balance_error).max()),
         "energy_balance_ratio": result.balance_ratio,
         "out": args.out,
+        "warnings": _run_warnings(system, result),
     }
     if args.convergence:
         from lumped.convergence import convergence_study
@@ -322,6 +341,9 @@ def cmd_run(args) -> int:
 
             print()
             print(format_figures(rows))
+    else:
+        for text in summary["warnings"]:
+            print(f"lumped: warning: {text}", file=sys.stderr)
     if result.diverged:
         print(f"lumped run: {result.message}", file=sys.stderr)
         return EXIT_DIVERGED
@@ -539,6 +561,7 @@ def format_run(summary: dict) -> str:
             f"  warning: the energy balance is off by {ratio:.1%}: this step is too large for an "
             "accurate run; `lumped check` gives a recommended step"
         )
+    lines += [f"  warning: {text}" for text in summary.get("warnings", ())]
     if summary["out"]:
         lines.append(f"  written to            {summary['out']}")
     events = summary["events"]

@@ -80,12 +80,22 @@ class Signal:
         """``(kind, parameters, data)`` for :func:`lumped.signal_kernels.signal_motion`."""
         raise NotImplementedError
 
-    def motion(self, t):
-        """Value, rate and second rate at ``t`` (s, any shape), SI."""
-        t = np.asarray(t, dtype=float)
+    def _encoded(self) -> tuple[int, np.ndarray, np.ndarray]:
         kind, parameters, data = self.code()
         p = np.zeros((1, signal_kernels.PARAMETERS))
         p[0, : len(parameters)] = parameters
+        return kind, p, data
+
+    def span(self) -> tuple[float, float]:
+        """Times (s) outside of which the signal is zero, value and rates (the end may
+        be inf)."""
+        kind, p, _ = self._encoded()
+        return signal_kernels.signal_span(kind, p, 0)
+
+    def motion(self, t):
+        """Value, rate and second rate at ``t`` (s, any shape), SI."""
+        t = np.asarray(t, dtype=float)
+        kind, p, data = self._encoded()
         flat = np.ascontiguousarray(t.ravel())
         parts = [np.empty_like(flat) for _ in range(3)]
         signal_kernels.signal_series(kind, p, data if len(data) else np.zeros(1), flat, *parts)
@@ -266,6 +276,24 @@ def _road_profile(road_class: str, seed: int) -> np.ndarray:
         dz = np.fft.irfft(coefficients * (2j * np.pi * n), n=ROAD_POINTS) * (ROAD_POINTS / 2)
         _PROFILE_CACHE[key] = np.concatenate([z, dz])
     return _PROFILE_CACHE[key]
+
+
+#: Steps below which an input that acts only for a while is too brief for the step.
+BRIEF_STEPS = 10
+
+
+def brief_inputs(system: System, dt: float) -> list[str]:
+    """Notes on the inputs of ``system`` that act for fewer than :data:`BRIEF_STEPS`
+    steps of ``dt`` (s) — a bump passed in a few steps: the steps may pass over it."""
+    notes = []
+    for input_id in system.inputs:
+        on, off = signal_for(system, input_id).span()
+        if math.isfinite(off) and off - on < BRIEF_STEPS * dt:
+            notes.append(
+                f"input {input_id!r} acts for {off - on:.4g} s, fewer than {BRIEF_STEPS} steps of "
+                f"dt = {dt:.4g} s: the steps may pass over it; take dt ≤ {(off - on) / BRIEF_STEPS:.3g} s"
+            )
+    return notes
 
 
 def signal_for(system: System, input_id: str) -> Signal:

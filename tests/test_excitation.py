@@ -374,3 +374,33 @@ seed = 9
     np.testing.assert_allclose(
         result.support_velocity[:, 0], reference.rate(result.time), rtol=0, atol=1e-12
     )
+
+
+def test_signal_spans_are_where_the_signals_act():
+    # A bump of length L passed at speed V from t₀ is under the wheel for L/V (its
+    # definition, (H/2)(1 − cos(2πV(t − t₀)/L)) — common practice); a sweep acts for
+    # its duration; a step from its time on; a harmonic always. Beside each span the
+    # signal is zero, value and rates.
+    from lumped.excitation import BumpSignal, HarmonicSignal, StepSignal, SweepSignal
+
+    cases = [
+        (BumpSignal(0.05, 0.9, 5.0, 0.2), (0.2, 0.2 + 0.9 / 5.0)),
+        (SweepSignal(0.01, 1.0, 12.0, 0.4, False), (0.0, 0.4)),
+        (StepSignal(0.02, 0.31), (0.31, math.inf)),
+        (HarmonicSignal(0.01, 3.0, 0.4), (0.0, math.inf)),
+    ]
+    for signal, (on, off) in cases:
+        assert signal.span() == pytest.approx((on, off), rel=1e-15)
+        outside = np.array([on - 1e-3, on - 0.5] + ([off + 1e-3, off + 2.0] if math.isfinite(off) else []))
+        outside = outside[outside >= 0] if on > 0 else outside[outside > off]
+        for part in signal.motion(outside):
+            np.testing.assert_array_equal(part, 0.0)
+
+
+def test_an_input_brief_for_the_step_is_named_with_the_step_it_needs():
+    from lumped.excitation import BRIEF_STEPS, brief_inputs
+
+    system = lumped.load(lumped.demo_path("quarter_car"))  # invented demo: a 0.9 m bump at 5 m/s
+    assert brief_inputs(system, 0.2e-3) == []
+    (note,) = brief_inputs(system, 0.05)
+    assert "'speed_bump'" in note and "0.18 s" in note and f"{0.18 / BRIEF_STEPS:.3g} s" in note

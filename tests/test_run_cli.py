@@ -292,3 +292,19 @@ def test_figures_for_chosen_ride_bodies_after_settling(capsys, tmp_path):
     assert all("1–3 s" in row["rule"] for row in rows if row["key"] == "acceleration_rms")
     code = main(["run", shuttle, "--figures", "--ride", "sat", "--duration", "1 s"])
     assert code == 2 and "'sat'" in capsys.readouterr().err
+
+
+def test_a_run_warns_of_an_unstable_step_and_a_bump_passed_between_steps(capsys, tmp_path):
+    # RK4 at 1 s on the quarter-car demo (invented): far beyond its step limit, and
+    # the 0.18 s bump falls between steps, so the run looks calm; it must say so.
+    import lumped
+
+    path = lumped.demo_path("quarter_car")
+    assert main(["run", str(path), "--dt", "1s", "--json"]) == 0
+    warnings = json.loads(capsys.readouterr().out)["warnings"]
+    assert any("unstable" in w for w in warnings) and any("speed_bump" in w for w in warnings)
+    assert main(["run", str(path), "--dt", "1s", "--quiet", "--out", str(tmp_path / "run.csv")]) == 0
+    err = capsys.readouterr().err
+    assert err.count("lumped: warning:") == 2 and "Traceback" not in err
+    assert main(["run", str(path), "--json"]) == 0
+    assert json.loads(capsys.readouterr().out)["warnings"] == []
