@@ -21,6 +21,7 @@ import numpy as np
 import streamlit as st
 
 import lumped
+import lumped.excitation
 import lumped.frequency
 import lumped.metrics
 import lumped.modal
@@ -668,6 +669,8 @@ def run_tab(system: lumped.System, system_key: str) -> None:
     current_key = _settings_key(system_key, stepper, dt, duration, rate) if ready else None
     if check is not None:
         _verdict(check)
+        for note in lumped.excitation.brief_inputs(system, dt):
+            st.warning(_md(note), icon=":material/warning:")
         if state.get("run_anyway_for") != current_key:  # a tick holds for one setting only
             state.run_anyway, state.run_anyway_for = False, current_key
         if not check.stable:

@@ -726,6 +726,16 @@ def test_an_unstable_step_is_refused_until_run_anyway_is_ticked():
     assert any("diverged" in _plain(w.value) for w in at.warning)
 
 
+def test_a_bump_too_brief_for_the_step_is_a_warning_on_the_run_tab():
+    # The demo's bump passes in 0.18 s (invented values): at 30 ms the steps may pass
+    # over it, which the library's note says; at the file's 0.2 ms it does not.
+    at = _tab(_open(), "Run")
+    assert not any("speed_bump" in _plain(w.value) for w in at.warning)
+    _set_step(at, "rk4", "30 ms", "3 s")
+    (note,) = [_plain(w.value) for w in at.warning if "speed_bump" in _plain(w.value)]
+    assert note == _plain(tables.md_escape(lumped.excitation.brief_inputs(_demo_system("quarter_car"), 0.03)[0]))
+
+
 def test_the_same_settings_reuse_the_kept_run():
     at = _tab(_open(), "Run")
     at.text_input(key="step_duration").input("0.5 s").run()
