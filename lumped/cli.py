@@ -262,12 +262,25 @@ def cmd_check(args) -> int:
     return EXIT_OK if verdict.stable else EXIT_UNSTABLE
 
 
-def _run_warnings(system, result) -> list[str]:
+def _run_warnings(system, result, output_rate, figures) -> list[str]:
     """What a reader of a run must know before trusting it: a step the step check
-    finds unstable, inputs too brief for the step."""
+    finds unstable, inputs too brief for the step, an output rate the step cannot
+    give, figures left out of a run that diverged."""
     from lumped.excitation import brief_inputs
+    from lumped.simulate import steps_per_sample
 
     warnings = []
+    rate = output_rate if output_rate is not None else system.run.output_rate
+    if rate:
+        every = steps_per_sample(rate, result.dt)
+        if abs(every * result.dt * rate - 1.0) > 0.01:
+            warnings.append(
+                f"output every {every} step{'s' if every > 1 else ''} of dt = {_seconds(result.dt)}: "
+                f"{1 / (every * result.dt):.6g} Hz, not the {rate:.6g} Hz asked; take dt = {_seconds(1 / rate)} "
+                "or a whole fraction of it"
+            )
+    if figures and result.diverged:
+        warnings.append("no figures: the run diverged, so its samples stop early")
     check = result.check
     if check is not None and not check.stable:
         limit = ("no positive step is stable" if check.max_stable_dt is None
@@ -319,7 +332,7 @@ def cmd_run(args) -> int:
         "energy_balance_error": float(abs(result.balance_error).max()),
         "energy_balance_ratio": result.balance_ratio,
         "out": args.out,
-        "warnings": _run_warnings(system, result),
+        "warnings": _run_warnings(system, result, args.output_rate, args.figures),
     }
     if args.convergence:
         from lumped.convergence import convergence_study

@@ -401,6 +401,12 @@ def _plain_pages():
         advise(before)
 
 
+def steps_per_sample(output_rate: float | None, dt: float) -> int:
+    """Steps between output samples for ``output_rate`` (Hz; None: every step) at
+    step ``dt`` (s): round(1/(rate·dt)), at least one."""
+    return max(1, round(1.0 / (output_rate * dt))) if output_rate else 1
+
+
 def memory_cap() -> int:
     """Bytes a run's output may take by default: a quarter of the machine's memory."""
     try:
@@ -544,7 +550,7 @@ def simulate(
     matrices = prepared.matrices
     steps = step_count(dt, duration)
     if output_every is None:
-        output_every = max(1, round(1.0 / (output_rate * dt))) if output_rate else 1
+        output_every = steps_per_sample(output_rate, dt)
     samples = steps // output_every + 2
     width = 3 * matrices.n + 2 * len(matrices.element_ids) + 2 * len(matrices.support_ids) + len(matrices.force_ids) + 7
     need = samples * width * 8 * 2  # kernel buffers plus the result's derived arrays
