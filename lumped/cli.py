@@ -524,6 +524,8 @@ def format_modes(name: str, result) -> str:
 
 def format_check(name: str, verdict) -> str:
     state = "STABLE" if verdict.stable else "UNSTABLE"
+    if verdict.stable and verdict.dt > 2 * verdict.recommended_dt:
+        state += f", but {verdict.dt / verdict.recommended_dt:.3g}× the recommended dt (see its rule)"
     lines = [
         f"{name}: {verdict.stepper} at dt = {_seconds(verdict.dt)} over {verdict.duration:g} s "
         f"({verdict.steps:,} steps): {state}",

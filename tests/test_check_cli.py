@@ -497,3 +497,18 @@ def test_period_error_and_numerical_damping_per_mode(tmp_path, stepper_id):
     assert mode["period_error"] == pytest.approx(w / (2 * math.asin(w / 2)) - 1, rel=1e-9)
     assert mode["numerical_damping_ratio"] == pytest.approx(0.0, abs=1e-12)
     assert data["max_stable_dt"] == pytest.approx(2 / omega, rel=1e-9)
+
+
+def test_a_stable_step_far_above_the_recommended_one_says_so_in_the_headline():
+    # Newmark's average acceleration is stable at any step (Hughes, The Finite Element
+    # Method, 1987, ch. 9 [recalled from memory]), so 50 ms on the quarter-car demo
+    # (invented) is STABLE, yet twelve times the step the accuracy rule recommends.
+    import lumped
+
+    path = lumped.demo_path("quarter_car")
+    headline = run_cli("check", path, "--stepper", "newmark", "--dt", "50ms").stdout.splitlines()[0]
+    assert headline.endswith("× the recommended dt (see its rule)") and "STABLE, but" in headline
+    code, data = _check_json(path, "--stepper", "newmark", "--dt", "50ms")
+    assert code == 0 and data["dt"] > 2 * data["recommended_dt"]
+    fine = run_cli("check", path, "--stepper", "newmark", "--dt", "1ms").stdout.splitlines()[0]
+    assert fine.endswith(": STABLE")
