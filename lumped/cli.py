@@ -596,6 +596,7 @@ def format_run(summary: dict) -> str:
             f"    observed order {order:.2f} (declared {study['declared_order']})" if order is not None
             else "    observed order: errors at round-off, no slope to fit"
         )
+        lines += [f"    note: {note}" for note in study.get("notes", ())]
     return "\n".join(lines)
 
 

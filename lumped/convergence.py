@@ -12,7 +12,7 @@ log(error) against log(h).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -34,6 +34,7 @@ class ConvergenceStudy:
     observed_order: float | None
     declared_order: int | None
     method: str
+    notes: list[str] = field(default_factory=list)
 
     def to_json(self) -> dict:
         return {
@@ -43,6 +44,7 @@ class ConvergenceStudy:
             "observed_order": self.observed_order,
             "declared_order": self.declared_order,
             "method": self.method,
+            "notes": self.notes,
         }
 
 
@@ -87,4 +89,12 @@ def convergence_study(system: System, stepper: str, dt: float, duration: float, 
         x = np.log([p[0] for p in positive])
         y = np.log([p[1] for p in positive])
         observed = float(np.polyfit(x, y, 1)[0])
-    return ConvergenceStudy(stepper, list(steps), list(errors), observed, order, method)
+    notes = []
+    contacts = [e.id for e in system.elements.values() if getattr(e, "gap", None) is not None or
+                getattr(e, "acts", "both") != "both"]  # fmt: skip
+    if contacts and observed is not None and order is not None and observed < order - 1:
+        notes.append(
+            f"the observed order is below the declared {order}: contact elements ({', '.join(contacts)}) switch "
+            "abruptly, and near each switch the error falls more slowly than the stepper's order"
+        )
+    return ConvergenceStudy(stepper, list(steps), list(errors), observed, order, method, notes)

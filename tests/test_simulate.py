@@ -1291,3 +1291,17 @@ def test_a_run_frees_its_engine_when_it_returns(specialise, monkeypatch):
         if enabled:
             gc.enable()
     assert result.status == "completed"
+
+
+def test_convergence_study_says_why_contacts_lower_the_order():
+    # On the quarter-car demo (invented) the end stop and the lifting tyre switch
+    # abruptly, so RK4's error falls more slowly than h⁴ near the switches (common
+    # practice: a non-smooth right-hand side lowers the order of one-step methods); the
+    # study says so. A smooth linear system gets no such note.
+    system = lumped.load(lumped.demo_path("quarter_car"))
+    study = convergence_study(system, "rk4", 2e-4, 0.5, levels=4)
+    assert study.observed_order is not None and study.observed_order < study.declared_order - 1
+    (note,) = study.notes
+    assert "tyre" in note and "suspension_spring" in note
+    smooth = convergence_study(oscillator(1.0, 100.0, 0.1, x0=0.01), "rk4", 1e-2, 1.0, levels=4)
+    assert smooth.notes == []
