@@ -90,8 +90,7 @@ def convergence_study(system: System, stepper: str, dt: float, duration: float, 
         y = np.log([p[1] for p in positive])
         observed = float(np.polyfit(x, y, 1)[0])
     notes = []
-    contacts = [e.id for e in system.elements.values() if getattr(e, "gap", None) is not None or
-                getattr(e, "acts", "both") != "both"]  # fmt: skip
+    contacts = [s.id for s in system.springs.values() if not s.is_linear]  # end stops, one-sided springs
     if contacts and observed is not None and order is not None and observed < order - 1:
         notes.append(
             f"the observed order is below the declared {order}: contact elements ({', '.join(contacts)}) switch "

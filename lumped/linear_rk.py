@@ -295,13 +295,12 @@ def rk_maps(lanes: Lanes, a: np.ndarray, b: np.ndarray, stage_col: np.ndarray, c
 
 @dataclass(frozen=True)
 class FreeMaps:
-    """``every`` steps of free response (no input acting) as one map, the lane index
-    innermost: z after = ``phi`` z (2n, 2n, count); the energy of the interval of rate
+    """The steps of a sample interval of free response (no input acting) as one map
+    (:func:`free_maps`), the lane index innermost: z after = ``phi`` z (2n, 2n, count); the energy of the interval of rate
     p, Σₜ ``energy[p, t]`` z_a z_b over the pairs (a, b) = (``first[t]``,
     ``second[t]``), a ≤ b (3, pairs, count; ``rates`` those not zero); the
     acceleration at its end ``acc`` z (n, 2n, count)."""
 
-    every: int
     phi: np.ndarray
     energy: np.ndarray
     first: np.ndarray
@@ -337,7 +336,7 @@ def free_maps(maps: RKMaps, every: int) -> FreeMaps:
     def innermost(x):
         return np.ascontiguousarray(np.moveaxis(x, 0, -1))
 
-    return FreeMaps(every, innermost(phi), innermost(pairs), first.astype(np.int64),
+    return FreeMaps(innermost(phi), innermost(pairs), first.astype(np.int64),
                     second.astype(np.int64), rates.astype(np.int64), innermost(maps.free_acc))  # fmt: skip
 
 

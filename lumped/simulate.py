@@ -232,11 +232,11 @@ class _Elements:
         """The table of the elements ``order`` (indices), in that order."""
         curve = self.kind[order] == kernels.CURVE_DAMPER
         low, high = self.coff[order], self.coff[order + 1]
-        points = np.concatenate([np.arange(a, b) for a, b in zip(low[curve], high[curve], strict=True)] or [[]])
+        points = np.concatenate([np.arange(a, b) for a, b in zip(low[curve], high[curve], strict=True)]
+                                or [[]]).astype(np.int64)  # fmt: skip
         coff = np.concatenate([[0], np.cumsum(np.where(curve, high - low, 0))]).astype(np.int64)
         picked = (self.ea, self.eb, self.kind, self.k, self.c, self.c2, self.fs, self.acts, self.gap, self.gk)
-        return _Elements(*(x[order] for x in picked), coff, self.cv[points.astype(np.int64)],
-                         self.cf[points.astype(np.int64)])  # fmt: skip
+        return _Elements(*(x[order] for x in picked), coff, self.cv[points], self.cf[points])
 
     def links(self):
         """Linear springs and dampers merged per (lower, upper) node pair: (a, b, k, c)."""
@@ -852,10 +852,11 @@ class _Engine:
                 self.q, self.v = z[:n, 0].copy(), z[n:, 0].copy()
                 return status, done
             start_z, start_energy, start_count = z.copy(), self.energy.copy(), self.count
+            block = free_work(joined)
 
             def chunk(intervals):
                 return free_chunk(joined.phi, joined.energy, joined.first, joined.second, joined.rates, joined.acc,
-                                  z, free_work(joined), self.energy, first, intervals, *self._output_buffers(),
+                                  z, block, self.energy, first, intervals, *self._output_buffers(),
                                   self.q_limit)  # fmt: skip
 
             status, done, self.count = chunk(intervals)
@@ -878,8 +879,8 @@ class _Engine:
                     key = (maps.inputs, maps.rates, lanes.count, min(CHUNK_STEPS, self.steps), self.every)
                     arrays = self.prepared.spare.pop(key, None) or affine_rk_work(maps, lanes, *key[3:])
                     self._finish.append(lambda: _keep_spare(self.prepared.spare, key, arrays))
-                else:  # the inputs only, for their window
-                    arrays = None, np.zeros((len(maps.inputs), min(CHUNK_STEPS, self.steps))), None
+                else:  # no inputs to fill: input_rows only finds their window
+                    arrays = None, np.zeros((len(maps.inputs), 0)), None
                 work[h] = slots, *arrays
             slots, _, inputs, _ = work[h]
             # Stretches where no input acts, a whole sample interval at a time.
