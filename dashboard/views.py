@@ -274,7 +274,7 @@ def modes_tab(system: lumped.System, system_key: str) -> None:
         modal = found[1]
         damping = "classical" if modal.classical_damping else "non-proportional"
         st.caption(
-            f"{len(modal.modes):,} modes of the system linearised at static equilibrium "
+            f"{len(modal.modes):,} mode{'' if len(modal.modes) == 1 else 's'} of the system linearised at static equilibrium "
             f"({damping} damping). Natural frequency = |λ|/2π of the damped eigenvalue, "
             "damping ratio = −Re λ/|λ|; the shape is the undamped mode's, mass-normalised."
         )
