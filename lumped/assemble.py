@@ -18,6 +18,7 @@ apart in :class:`NonlinearElements`, for the stepping engine to correct.
 
 from __future__ import annotations
 
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
 import networkx as nx
@@ -27,7 +28,7 @@ import scipy.sparse.linalg as spla
 
 from lumped.model import Damper, Spring, System
 
-__all__ = ["Matrices", "NonlinearElements", "StateSpace", "assemble", "state_space", "DENSE_LIMIT"]
+__all__ = ["Matrices", "NonlinearElements", "StateSpace", "assemble", "copies", "state_space", "COPY_VALUES", "DENSE_LIMIT"]
 
 #: Up to this many bodies, state-space matrices are dense arrays; above, linear operators.
 DENSE_LIMIT = 2000
@@ -157,15 +158,66 @@ def assemble(system: System | nx.MultiGraph) -> Matrices:
     stiffness, damping = column("stiffness"), column("coefficient")
     inertance, preload = column("inertance"), column("preload")
 
-    D = _incidence(ends, body_pos, n_e, n_b)
-    D_s = _incidence(ends, support_pos, n_e, n_s)
+    force_ids, P = _force_map(system, body_pos)
+    return _matrices(
+        body_ids, support_ids, element_ids, element_kinds, mass, stiffness, damping, inertance, preload,
+        D=_incidence(ends, body_pos, n_e, n_b),
+        D_s=_incidence(ends, support_pos, n_e, n_s),
+        force_ids=force_ids,
+        P=P,
+        gravity=float(graph.graph.get("gravity", 9.81)),
+        floating=bool(graph.graph.get("floating", False)),
+        nonlinear=_nonlinear_tables([d.get("item") for *_, d in edges]),
+    )
+
+
+#: The per-copy values :func:`copies` may replace: per-body ``mass`` and these per-element arrays.
+COPY_VALUES = ("mass", "stiffness", "damping", "inertance", "preload")
+
+
+def copies(matrices: Matrices, prefixes: Sequence[str], values: Mapping[str, np.ndarray] | None = None) -> Matrices:
+    """``len(prefixes)`` copies of ``matrices`` side by side: block-diagonal, the
+    supports shared (a support is a prescribed motion, the same for every copy), copy
+    i's bodies, elements and force items named ``prefixes[i] + id`` and laid copy by
+    copy. ``values`` replaces any of :data:`COPY_VALUES` per copy: an array (copies,
+    bodies) for ``mass`` (kg), (copies, elements) for the others (SI). What
+    :func:`assemble` gives for the copies laid out as one system, at the cost of a
+    few array operations."""
+    count = len(prefixes)
+    per_copy = {name: np.broadcast_to(getattr(matrices, name), (count, len(getattr(matrices, name))))
+                for name in COPY_VALUES}  # fmt: skip
+    for name, array in (values or {}).items():
+        if name not in per_copy:
+            raise ValueError(f"copies: {name!r} is not one of {', '.join(COPY_VALUES)}")
+        per_copy[name] = np.asarray(array, dtype=float).reshape(per_copy[name].shape)
+
+    def named(ids):
+        return tuple(p + i for p in prefixes for i in ids)
+
+    def block(x):
+        return sp.kron(sp.identity(count, format="csr"), x, format="csr")
+
+    return _matrices(
+        named(matrices.body_ids), matrices.support_ids, named(matrices.element_ids), matrices.element_kinds * count,
+        *(np.ascontiguousarray(per_copy[name]).ravel() for name in COPY_VALUES),
+        D=block(matrices.D),
+        D_s=sp.kron(np.ones((count, 1)), matrices.D_s, format="csr"),
+        force_ids=named(matrices.force_ids),
+        P=block(matrices.P),
+        gravity=matrices.gravity,
+        floating=matrices.floating,
+        nonlinear=_copied_tables(matrices.nonlinear, count, len(matrices.element_ids)),
+    )  # fmt: skip
+
+
+def _matrices(body_ids, support_ids, element_ids, element_kinds, mass, stiffness, damping, inertance, preload,
+              D, D_s, **rest) -> Matrices:  # fmt: skip
+    """:class:`Matrices` from the incidences and element values (the module's formulas)."""
     Dt = D.T.tocsr()
 
     def congruence(values: np.ndarray, right: sp.csr_matrix) -> sp.csr_matrix:
         return (Dt @ sp.diags_array(values) @ right).tocsr()
 
-    M = (sp.diags_array(mass) + congruence(inertance, D)).tocsr()
-    force_ids, P = _force_map(system, body_pos)
     return Matrices(
         body_ids=body_ids,
         support_ids=support_ids,
@@ -178,17 +230,41 @@ def assemble(system: System | nx.MultiGraph) -> Matrices:
         preload=preload,
         D=D,
         D_s=D_s,
-        M=M,
+        M=(sp.diags_array(mass) + congruence(inertance, D)).tocsr(),
         C=congruence(damping, D),
         K=congruence(stiffness, D),
         M_s=congruence(inertance, D_s),
         C_s=congruence(damping, D_s),
         K_s=congruence(stiffness, D_s),
-        force_ids=force_ids,
-        P=P,
-        gravity=float(graph.graph.get("gravity", 9.81)),
-        floating=bool(graph.graph.get("floating", False)),
-        nonlinear=_nonlinear_tables([d.get("item") for *_, d in edges]),
+        **rest,
+    )
+
+
+def _copied_tables(tables: NonlinearElements, count: int, elements: int) -> NonlinearElements:
+    """The nonlinear tables of ``count`` copies of a system of ``elements`` elements."""
+
+    def shifted(x, by):
+        """``x`` once per copy, copy i's shifted by i·by."""
+        return (x[None, :] + by * np.arange(count)[:, None]).ravel().astype(np.int64)
+
+    def indices(x):
+        return shifted(x, elements)
+
+    points = tables.curve_offset[-1]
+    offsets = np.append(shifted(tables.curve_offset[:-1], points), count * points)
+    return NonlinearElements(
+        end_stop_index=indices(tables.end_stop_index),
+        end_stop_gap=np.tile(tables.end_stop_gap, count),
+        end_stop_stiffness=np.tile(tables.end_stop_stiffness, count),
+        one_sided_index=indices(tables.one_sided_index),
+        one_sided_sign=np.tile(tables.one_sided_sign, count),
+        asymmetric_index=indices(tables.asymmetric_index),
+        asymmetric_rebound=np.tile(tables.asymmetric_rebound, count),
+        asymmetric_compression=np.tile(tables.asymmetric_compression, count),
+        curve_index=indices(tables.curve_index),
+        curve_offset=offsets,
+        curve_velocity=np.tile(tables.curve_velocity, count),
+        curve_force=np.tile(tables.curve_force, count),
     )
 
 

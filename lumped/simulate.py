@@ -16,17 +16,19 @@ included, tension positive) and deflections are from static equilibrium.
 
 from __future__ import annotations
 
+import functools
 import math
 import os
-from collections.abc import Callable
+from collections.abc import Callable, Mapping, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, field
+from time import monotonic
 
 import numpy as np
 import scipy.sparse as sp
 
 from lumped import kernels, signal_kernels
-from lumped.assemble import DENSE_LIMIT, Matrices, assemble, mass_solver
+from lumped.assemble import DENSE_LIMIT, Matrices, assemble, copies, mass_solver
 from lumped.errors import LumpedError
 from lumped.excitation import Signal, signal_for
 from lumped.kernels import LEFT_LIMIT
@@ -62,7 +64,7 @@ from lumped.steppers import (
     implicit_coefficients,
 )
 
-__all__ = ["RunError", "Event", "RunResult", "Prepared", "prepare", "simulate", "ADAPTIVE_METHODS", "BALANCE_WARNING", "CHUNK_STEPS"]
+__all__ = ["RunError", "Event", "RunResult", "Prepared", "prepare", "prepare_copies", "simulate", "ADAPTIVE_METHODS", "BALANCE_WARNING", "CHUNK_STEPS"]
 
 #: Steps per compiled chunk between the driver's progress/cancel/divergence checks.
 CHUNK_STEPS = 8192
@@ -117,6 +119,11 @@ class RunResult:
     ``dissipated``, ``support_work``, ``force_work`` and ``balance_error`` =
     kinetic + stored + dissipated − initial energy − work done.
     ``status`` is "completed", "diverged" or "cancelled"; ``message`` says why.
+
+    The element channels and the energies they give (``deflection``, ``force``,
+    ``stored``, ``kinetic``) are worked out from the samples when first read
+    (``element_series``), so that a run whose element channels nobody reads — a
+    batch of variants read for its displacements — does not pay for them.
     """
 
     system_name: str
@@ -132,21 +139,43 @@ class RunResult:
     displacement: np.ndarray
     velocity: np.ndarray
     acceleration: np.ndarray
-    deflection: np.ndarray
-    force: np.ndarray
     support_displacement: np.ndarray
     support_velocity: np.ndarray
     force_input: np.ndarray
-    kinetic: np.ndarray
-    stored: np.ndarray
     dissipated: np.ndarray
     support_work: np.ndarray
     force_work: np.ndarray
+    #: Called once, when an element channel is first read: (deflection, force, stored, kinetic).
+    element_series: Callable[[], tuple[np.ndarray, ...]] = field(repr=False, compare=False)
     events: list[Event] = field(default_factory=list)
     status: str = "completed"
     message: str = ""
     steps: int = 0
     check: StepCheck | None = None
+
+    @functools.cached_property
+    def _elements(self) -> tuple[np.ndarray, ...]:
+        return self.element_series()
+
+    @property
+    def deflection(self) -> np.ndarray:
+        """Element deflections from static equilibrium, m (samples × elements)."""
+        return self._elements[0]
+
+    @property
+    def force(self) -> np.ndarray:
+        """Element forces, static included, N, tension positive (samples × elements)."""
+        return self._elements[1]
+
+    @property
+    def stored(self) -> np.ndarray:
+        """Energy stored in the springs relative to static equilibrium, J."""
+        return self._elements[2]
+
+    @property
+    def kinetic(self) -> np.ndarray:
+        """Kinetic energy of the bodies (and inerters), J."""
+        return self._elements[3]
 
     @property
     def balance_error(self) -> np.ndarray:
@@ -381,17 +410,43 @@ def _size(count: int) -> str:
     return f"{count / 2**10:,.0f} KiB" if count >= 2**10 else f"{count} bytes"
 
 
+#: Free memory in blocks of 2 MiB or more from which runs let numpy ask for huge pages.
+HUGE_PAGES_FREE = 2**30
+#: Seconds a look at the kernel's free blocks is trusted for.
+HUGE_PAGES_LOOK = 1.0
+_huge_pages_seen = [-math.inf, False]  # (when, whether enough blocks were free)
+
+
+def _huge_pages_free(path: str = "/proc/buddyinfo") -> int:
+    """Bytes the kernel holds free in blocks of 2 MiB or more (from its free-block
+    counts, ``path``; 0 where they cannot be read)."""
+    try:
+        with open(path) as file:
+            lines = file.read().splitlines()
+        page = os.sysconf("SC_PAGE_SIZE")
+    except (OSError, ValueError):
+        return 0
+    total = 0
+    for line in lines:  # "Node 0, zone   Normal   8920   6152 …": free blocks of 1, 2, 4 … pages
+        for order, count in enumerate(line.split()[4:]):
+            if page << order >= 2**21:
+                total += int(count) * (page << order)
+    return total
+
+
 @contextmanager
 def _plain_pages():
     """numpy's transparent-huge-page advice off while a run allocates (and back as it
-    was after). Where the kernel cannot give huge pages — as on the machines this was
-    measured on: THP "madvise", none obtained — every first touch of a fresh large
-    array runs into page compaction: a 100 000-body chain's post-processing wrote its
-    131 MB of fresh element arrays in 0.42 s with the advice and 0.12 s without.
-    Set LUMPED_HUGE_PAGES=1 to leave numpy's choice alone."""
+    was after), unless the kernel holds :data:`HUGE_PAGES_FREE` free in blocks of
+    2 MiB. A huge page from a free block is a fault of 2 MiB at once: 48 MB of fresh
+    output touched in 8–11 ms here, against 25–35 ms in 4 KiB pages. But where no
+    such block is free, every fault of an advised array runs into page compaction: a
+    100 000-body chain's post-processing wrote its 131 MB of fresh element arrays in
+    0.42 s with the advice and 0.12 s without, on a machine whose free memory was
+    in small pieces. Set LUMPED_HUGE_PAGES=1 to leave numpy's choice alone."""
     core = getattr(np, "_core", None) or np.core
     advise = getattr(core.multiarray, "_set_madvise_hugepage", None)
-    if advise is None or os.environ.get("LUMPED_HUGE_PAGES") == "1":
+    if advise is None or os.environ.get("LUMPED_HUGE_PAGES") == "1" or _huge_blocks_free():
         yield
         return
     before = advise(False)
@@ -399,6 +454,15 @@ def _plain_pages():
         yield
     finally:
         advise(before)
+
+
+def _huge_blocks_free() -> bool:
+    """True when :func:`_huge_pages_free` reaches :data:`HUGE_PAGES_FREE` (looked
+    at once every :data:`HUGE_PAGES_LOOK` seconds)."""
+    now = monotonic()
+    if now - _huge_pages_seen[0] > HUGE_PAGES_LOOK:
+        _huge_pages_seen[:] = now, _huge_pages_free() >= HUGE_PAGES_FREE
+    return _huge_pages_seen[1]
 
 
 def steps_per_sample(output_rate: float | None, dt: float) -> int:
@@ -432,6 +496,7 @@ class Prepared:
     table: _Elements
     inputs: _Inputs
     model: tuple  # the kernels' model tuple without its work array (see lumped.kernels)
+    initial: tuple[np.ndarray, np.ndarray]  # the bodies' initial displacements (m) and velocities (m/s)
     lanes: Lanes | None = None  # small linear systems: explicit RK steps as affine maps
     #: The elements' order in a run's element channels (indices into the system's
     #: elements; None: the system's order), so that each copy's can be one block.
@@ -461,14 +526,38 @@ def prepare(system: System, lanes: int = 1) -> Prepared:
     matrices = assemble(system)
     if matrices.n == 0:
         raise RunError("the system has no bodies")
-    static = static_equilibrium(matrices)
-    table = _element_table(matrices, static)
     inputs = _inputs(system, matrices)
     force_body = np.array([matrices.body_ids.index(system.forces[f].on) for f in matrices.force_ids], dtype=np.int64)
+    initial = tuple(np.array([getattr(system.bodies[b], name) for b in matrices.body_ids], dtype=float)
+                    for name in ("initial_displacement", "initial_velocity"))  # fmt: skip
+    return _prepared(system, matrices, inputs, force_body, initial, lanes)
+
+
+@_plain_pages()
+def prepare_copies(prepared: Prepared, prefixes: Sequence[str], values: Mapping[str, np.ndarray]) -> Prepared:
+    """What :func:`prepare` gives for ``len(prefixes)`` copies of ``prepared``'s system
+    laid side by side (bodies and elements copy by copy, copy i's ids prefixed
+    ``prefixes[i]``, the supports and inputs shared), with per-copy ``values`` of
+    :data:`lumped.assemble.COPY_VALUES` — made from ``prepared`` by array operations,
+    with no system of copies built (see :func:`lumped.assemble.copies`). The result's
+    ``system`` is the one copied."""
+    count, n = len(prefixes), prepared.matrices.n
+    matrices = copies(prepared.matrices, prefixes, values)
+    inputs = prepared.inputs
+    program = (*inputs.program[:7], np.tile(inputs.program[7], count))
+    force_body = (prepared.model[7][None, :] + n * np.arange(count)[:, None]).ravel()
+    copied = _Inputs(inputs.supports, np.tile(inputs.scales, count), program)
+    initial = tuple(np.tile(x, count) for x in prepared.initial)
+    return _prepared(prepared.system, matrices, copied, force_body, initial, count)
+
+
+def _prepared(system, matrices, inputs, force_body, initial, lanes) -> Prepared:
+    static = static_equilibrium(matrices)
+    table = _element_table(matrices, static)
     model = (table.links(), table.nonlinear(), table.inerters(), table.args(), *_inverse_mass(matrices),
              force_body, inputs.scales.astype(float))  # fmt: skip
-    return Prepared(system, matrices, static, table, inputs, model, lanes_of(model, inputs.program, matrices.n, lanes))
-
+    return Prepared(system, matrices, static, table, inputs, model, initial,
+                    lanes_of(model, inputs.program, matrices.n, lanes))  # fmt: skip
 
 
 @_plain_pages()
@@ -569,7 +658,7 @@ class _Engine:
     """One fixed-step run: set-up, chunk loop, jumps, post-processing."""
 
     def __init__(self, prepared: Prepared, stepper, dt, duration, steps, output_every, samples, specialise=None):
-        system = self.system = prepared.system
+        self.system = prepared.system
         self.prepared = prepared
         matrices = self.m = prepared.matrices
         static = prepared.static
@@ -584,8 +673,7 @@ class _Engine:
         self.specialise = specialise
         self.model = (*prepared.model, np.zeros(matrices.n))  # work space of its own
         n = matrices.n
-        self.q = np.array([system.bodies[b].initial_displacement for b in matrices.body_ids], dtype=float)
-        self.v = np.array([system.bodies[b].initial_velocity for b in matrices.body_ids], dtype=float)
+        self.q, self.v = (x.copy() for x in prepared.initial)
         self.energy = np.zeros(3)
         self.out_q = np.zeros((samples, n))
         self.out_v = np.zeros((samples, n))
@@ -843,26 +931,17 @@ class _Engine:
             if key not in memo:
                 memo[key] = free_maps(maps_at(h), self.every)
             joined = memo[key]
-            z = np.concatenate([self.q.reshape(lanes.count, n).T, self.v.reshape(lanes.count, n).T])
-            if lanes.count == 1 and written_out:  # stops before an interval that diverges
+            z = np.ascontiguousarray(np.concatenate([self.q.reshape(lanes.count, n).T, self.v.reshape(lanes.count, n).T]))
+            if lanes.count == 1 and written_out:
                 maps = maps_at(h)
                 free_one = chunk_kernels(2 * n, maps.inputs, maps.rates)[2]
                 status, done, self.count = free_one(joined.phi, joined.energy, joined.acc, z, self.energy, first,
                                                     intervals, *self._output_buffers(), self.q_limit)  # fmt: skip
                 self.q, self.v = z[:n, 0].copy(), z[n:, 0].copy()
                 return status, done
-            start_z, start_energy, start_count = z.copy(), self.energy.copy(), self.count
-            block = free_work(joined)
-
-            def chunk(intervals):
-                return free_chunk(joined.phi, joined.energy, joined.first, joined.second, joined.rates, joined.acc,
-                                  z, block, self.energy, first, intervals, *self._output_buffers(),
-                                  self.q_limit)  # fmt: skip
-
-            status, done, self.count = chunk(intervals)
-            if status != kernels.OK:  # every lane again, to the interval where one went beyond
-                z[:], self.energy[:], self.count = start_z, start_energy, start_count
-                _, done, self.count = chunk(done)
+            status, done, self.count = free_chunk(joined.phi, joined.energy, joined.first, joined.second, joined.rates,
+                                                  joined.acc, z, free_work(joined), self.energy, first, intervals,
+                                                  *self._output_buffers(), self.q_limit)  # fmt: skip
             self.q, self.v = z[:n].T.ravel(), z[n:].T.ravel()
             return status, done
 
@@ -1117,7 +1196,7 @@ class _Engine:
         count = self.count
         steps = self.out_step[:count]
         time = np.where(steps >= self.steps, self.T, steps * self.h)
-        q, v, a = self.out_q[:count], self.out_v[:count], self.out_a[:count]
+        q, v, a = (_trimmed(x[:count], x) for x in (self.out_q, self.out_v, self.out_a))
         u, ud, udd, F = self.inputs.at(time)
         order = self.prepared.element_order
         table = self.table if order is None else self.table.taken(order)
@@ -1125,14 +1204,17 @@ class _Engine:
         if order is not None:
             element_ids = tuple(element_ids[e] for e in order)
             element_kinds = tuple(element_kinds[e] for e in order)
-        ne = len(element_ids)
-        deflection = np.empty((count, ne))
-        force = np.empty((count, ne))
-        stored = np.empty(count)
-        inerter_energy = np.empty(count)
-        ends = (np.ascontiguousarray(x) for x in (q, v, a, u, ud, udd))  # one layout for the compiled loop
-        kernels.element_series(*ends, *table.args(), deflection, force, stored, inerter_energy, np.empty(ne))
-        kinetic = 0.5 * ((v * v) @ self.m.mass) + inerter_energy
+        mass = self.m.mass
+
+        @_plain_pages()
+        def element_series():
+            ne = len(element_ids)
+            deflection, force = np.empty((count, ne)), np.empty((count, ne))
+            stored, inerter_energy = np.empty(count), np.empty(count)
+            ends = (np.ascontiguousarray(x) for x in (q, v, a, u, ud, udd))  # one layout for the compiled loop
+            kernels.element_series(*ends, *table.args(), deflection, force, stored, inerter_energy, np.empty(ne))
+            return deflection, force, stored, 0.5 * ((v * v) @ mass) + inerter_energy
+
         events = self._events()
         return RunResult(
             system_name=self.system.name,
@@ -1145,19 +1227,16 @@ class _Engine:
             element_kinds=element_kinds,
             support_ids=self.m.support_ids,
             force_ids=self.m.force_ids,
-            displacement=_trimmed(q, self.out_q),
-            velocity=_trimmed(v, self.out_v),
-            acceleration=_trimmed(a, self.out_a),
-            deflection=deflection,
-            force=force,
+            displacement=q,
+            velocity=v,
+            acceleration=a,
             support_displacement=u,
             support_velocity=ud,
             force_input=F * self.inputs.scales,
-            kinetic=kinetic,
-            stored=stored,
             dissipated=self.out_e[:count, 0].copy(),
             support_work=self.out_e[:count, 1].copy(),
             force_work=self.out_e[:count, 2].copy(),
+            element_series=element_series,
             events=events,
             status=status,
             message=message,

@@ -18,9 +18,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from lumped.assemble import Matrices
 from lumped.errors import LumpedError
 from lumped.model import System, check_system
-from lumped.simulate import Event, RunResult, prepare, simulate
+from lumped.simulate import Event, RunResult, prepare, prepare_copies, simulate
 
 __all__ = ["VariantError", "VariantRun", "VariantRuns", "variant_system", "simulate_variants"]
 
@@ -83,8 +84,6 @@ class VariantRuns:
     displacement: np.ndarray
     velocity: np.ndarray
     acceleration: np.ndarray
-    deflection: np.ndarray
-    force: np.ndarray
     events: list[list[Event]]
     status: str
     message: str
@@ -94,6 +93,16 @@ class VariantRuns:
     @property
     def count(self) -> int:
         return self.displacement.shape[0]
+
+    @property
+    def deflection(self) -> np.ndarray:
+        """Element deflections (variants, samples, elements), m, worked out when first read."""
+        return _by_variant(self.batch.deflection, self.count)
+
+    @property
+    def force(self) -> np.ndarray:
+        """Element forces (variants, samples, elements), N, worked out when first read."""
+        return _by_variant(self.batch.force, self.count)
 
     def system(self, i: int) -> System:
         """Variant ``i`` as a system of its own."""
@@ -131,6 +140,11 @@ class VariantRun:
     events: list[Event]
     status: str
     message: str
+
+
+def _by_variant(array: np.ndarray, count: int) -> np.ndarray:
+    """A batch's channels (samples, variants × items) as (variants, samples, items), a view."""
+    return array.reshape(len(array), count, array.shape[1] // count).transpose(1, 0, 2)
 
 
 def _prefix(i: int) -> str:
@@ -193,6 +207,51 @@ def _stacked(base: System, values: Mapping[str, np.ndarray], count: int) -> Syst
     return dataclasses.replace(base, name=f"{base.name} ({count} variants)", **groups)
 
 
+#: The changes :func:`simulate_variants` makes from the base's matrices (group, field →
+#: the matrices' per-copy array, see :data:`lumped.assemble.COPY_VALUES`). The rules
+#: on these fields are bounds, so :func:`_check_extremes` checks every value.
+_COPY_FIELDS = {
+    ("bodies", "mass"): "mass",
+    ("springs", "stiffness"): "stiffness",
+    ("springs", "preload"): "preload",
+    ("dampers", "coefficient"): "damping",
+    ("inerters", "inertance"): "inertance",
+}
+
+
+def _copyable(system: System, path: str) -> bool:
+    """True when the change ``path`` is a value of the assembled matrices (not a gap,
+    a rebound coefficient, an initial displacement, …)."""
+    group, item_id, field = _parse(path, system)
+    return (group, field) in _COPY_FIELDS and not (group == "dampers" and system.dampers[item_id].coefficient is None)
+
+
+def _copy_values(system: System, matrices: Matrices, values: Mapping[str, np.ndarray]) -> dict[str, np.ndarray]:
+    """The changes (each :func:`_copyable`) as per-copy arrays of ``matrices`` (the
+    base's): {"stiffness": (count, elements), "mass": (count, bodies), …}."""
+    count = len(next(iter(values.values())))
+    out: dict[str, np.ndarray] = {}
+    for path, v in values.items():
+        group, item_id, field = _parse(path, system)
+        name = _COPY_FIELDS[group, field]
+        if name not in out:
+            out[name] = np.tile(getattr(matrices, name), (count, 1))
+        ids = matrices.body_ids if name == "mass" else matrices.element_ids
+        out[name][:, ids.index(item_id)] = v
+    return out
+
+
+def _check_extremes(system: System, values: Mapping[str, np.ndarray]) -> None:
+    """Each change at its smallest and largest value checked as a variant system of
+    its own; a problem names the first variant with that value."""
+    for path, v in values.items():
+        for i in {int(np.argmin(v)), int(np.argmax(v))}:
+            try:
+                variant_system(system, {path: v[i]})
+            except VariantError as exc:
+                raise VariantError(f"variant {i}: {exc}") from None
+
+
 def simulate_variants(
     system: System,
     changes: Mapping[str, Sequence[float]],
@@ -226,23 +285,27 @@ def simulate_variants(
             raise VariantError(f"variant change {path!r}: every value must be finite")
     count = lengths.pop()
     _refuse(check_system(system), str)
-    stacked = _stacked(system, values, count)
-    # One check of every variant's values; each variant's graph is the base's, checked above.
-    _refuse(check_system(stacked, connectivity=False), _unstacked)
-    # Bodies are laid variant by variant; elements by group, so the batch's element
-    # channels are ordered variant by variant too, and each variant's are a view.
-    prepared = prepare(stacked, lanes=count)
+    settings = (stepper, dt, duration, output_rate, output_every)
     element_ids = tuple(system.elements)
-    position = {element: k for k, element in enumerate(prepared.matrices.element_ids)}
-    order = np.array([position[_prefix(i) + x] for i in range(count) for x in element_ids], dtype=np.int64)
-    batch = simulate(dataclasses.replace(prepared, element_order=order), stepper, dt, duration, output_rate,
-                     output_every, check=False, specialise=specialise)  # fmt: skip
+    if all(_copyable(system, path) for path in values):
+        # Every change is a value of the assembled matrices: the copies are made from the
+        # base's set-up by array operations (no system of copies is built).
+        _check_extremes(system, values)
+        base = prepare(system)
+        copied = _copy_values(system, base.matrices, values)
+        prepared = prepare_copies(base, [_prefix(i) for i in range(count)], copied)
+    else:
+        stacked = _stacked(system, values, count)
+        # One check of every variant's values; each variant's graph is the base's, checked above.
+        _refuse(check_system(stacked, connectivity=False), _unstacked)
+        # Bodies are laid variant by variant; elements by group, so the batch's element
+        # channels are put in variant order, and each variant's are a view.
+        prepared = prepare(stacked, lanes=count)
+        position = {element: k for k, element in enumerate(prepared.matrices.element_ids)}
+        order = np.array([position[_prefix(i) + x] for i in range(count) for x in element_ids], dtype=np.int64)
+        prepared = dataclasses.replace(prepared, element_order=order)
+    batch = simulate(prepared, *settings, check=False, specialise=specialise)
     n = len(system.bodies)
-    samples = len(batch.time)
-
-    def split(array: np.ndarray, width: int) -> np.ndarray:
-        return array.reshape(samples, count, width).transpose(1, 0, 2)
-
     events: list[list[Event]] = [[] for _ in range(count)]
     for event in batch.events:
         head, _, rest = event.element.partition("_")
@@ -254,11 +317,9 @@ def simulate_variants(
         time=batch.time,
         body_ids=tuple(b[len(first):] for b in batch.body_ids[:n]),
         element_ids=element_ids,
-        displacement=split(batch.displacement, n),
-        velocity=split(batch.velocity, n),
-        acceleration=split(batch.acceleration, n),
-        deflection=split(batch.deflection, len(element_ids)),
-        force=split(batch.force, len(element_ids)),
+        displacement=_by_variant(batch.displacement, count),
+        velocity=_by_variant(batch.velocity, count),
+        acceleration=_by_variant(batch.acceleration, count),
         events=events,
         status=batch.status,
         message=batch.message,

@@ -1305,3 +1305,38 @@ def test_convergence_study_says_why_contacts_lower_the_order():
     assert "tyre" in note and "suspension_spring" in note
     smooth = convergence_study(oscillator(1.0, 100.0, 0.1, x0=0.01), "rk4", 1e-2, 1.0, levels=4)
     assert smooth.notes == []
+
+
+def test_element_channels_are_worked_out_once_when_first_read(monkeypatch):
+    # A run's element channels (forces, deflections, the springs' stored energy) come
+    # from its samples when first read, once; a run read only for its displacements
+    # does not pay for them.
+    import lumped.simulate as engine
+
+    calls = []
+    series = engine.kernels.element_series
+    monkeypatch.setattr(engine.kernels, "element_series", lambda *args: calls.append(1) or series(*args))
+    run = simulate(oscillator(2.0, 800.0, 0.05, x0=0.01), "rk4", 1e-3, 0.2, check=False)
+    assert calls == [] and run.displacement.shape == (201, 1)
+    # the spring's force is k x − m g (tension positive; static included), its energy ½ k x²
+    np.testing.assert_allclose(run.force[:, 0], 800.0 * run.displacement[:, 0] - 2.0 * 9.81, rtol=1e-12, atol=1e-12)
+    np.testing.assert_allclose(run.stored, 0.5 * 800.0 * run.displacement[:, 0] ** 2, rtol=1e-12, atol=1e-15)
+    assert len(calls) == 1
+
+
+def test_free_blocks_of_two_mebibytes_are_counted_from_the_kernels_table(tmp_path):
+    # /proc/buddyinfo lists free blocks of 2^order pages per zone (the Linux kernel's
+    # documentation, Documentation/filesystems/proc.rst [recalled from memory]); with
+    # 4 KiB pages, orders 9 and 10 are the blocks of 2 and 4 MiB.
+    import os
+
+    from lumped.simulate import _huge_pages_free
+
+    table = tmp_path / "buddyinfo"
+    table.write_text(
+        "Node 0, zone      DMA      0      0      0      0      0      0      0      0      1      1      3\n"
+        "Node 0, zone   Normal   8920   6152   3189   1133   1271    666    232    144     67     15    206\n"
+    )
+    if os.sysconf("SC_PAGE_SIZE") == 4096:
+        assert _huge_pages_free(str(table)) == (1 + 15) * 2**21 + (3 + 206) * 2**22
+    assert _huge_pages_free(str(tmp_path / "missing")) == 0

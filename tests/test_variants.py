@@ -110,3 +110,62 @@ def test_a_run_gives_its_element_channels_in_the_order_asked():
     np.testing.assert_array_equal(reordered.force, plain.force[:, order])
     np.testing.assert_array_equal(reordered.deflection, plain.deflection[:, order])
     np.testing.assert_array_equal(reordered.stored, plain.stored)
+
+
+@pytest.mark.parametrize("name", ["quarter_car", "truck_cab_frame_axle", "machine_on_mounts", "shuttle_corner_with_seat"])
+def test_copies_of_the_matrices_equal_the_assembly_of_the_copies_laid_out_as_one_system(name):
+    # A batch whose changes are values of the matrices is made from the base's
+    # assembly (lumped.assemble.copies); it must hold what assembling the copies laid
+    # out as one system gives (the general path), element rows matched by id. The
+    # demos (invented) bring end stops, lifting tyres and tabulated dampers.
+    from lumped.assemble import copies
+    from lumped.variants import _copy_values, _stacked
+
+    system = lumped.load(lumped.demo_path(name))
+    spring, body = next(iter(system.springs)), next(iter(system.bodies))
+    values = {f"springs.{spring}.stiffness": np.array([1e4, 2e4, 3e4]), f"bodies.{body}.mass": np.array([5.0, 50.0, 500.0])}
+    whole = lumped.assemble(_stacked(system, values, 3))
+    base = lumped.assemble(system)
+    made = copies(base, ["v0_", "v1_", "v2_"], _copy_values(system, base, values))
+    assert made.body_ids == whole.body_ids and made.support_ids == whole.support_ids
+    assert made.force_ids == whole.force_ids and sorted(made.element_ids) == sorted(whole.element_ids)
+    rows = np.array([whole.element_ids.index(e) for e in made.element_ids])
+    assert made.element_kinds == tuple(whole.element_kinds[r] for r in rows)
+    for field in ("mass", "stiffness", "damping", "inertance", "preload"):
+        expected = getattr(whole, field) if field == "mass" else getattr(whole, field)[rows]
+        np.testing.assert_array_equal(getattr(made, field), expected)
+    for field in ("M", "C", "K", "M_s", "C_s", "K_s", "P"):
+        np.testing.assert_array_equal(getattr(made, field).toarray(), getattr(whole, field).toarray())
+    np.testing.assert_array_equal(made.D.toarray(), whole.D.toarray()[rows])
+    np.testing.assert_array_equal(made.D_s.toarray(), whole.D_s.toarray()[rows])
+    assert (made.gravity, made.floating) == (whole.gravity, whole.floating)
+
+    def tables(m):
+        t = m.nonlinear
+        curves = {m.element_ids[e]: (tuple(t.curve_velocity[t.curve_offset[j]:t.curve_offset[j + 1]]),
+                                     tuple(t.curve_force[t.curve_offset[j]:t.curve_offset[j + 1]]))
+                  for j, e in enumerate(t.curve_index)}  # fmt: skip
+        return (sorted(zip([m.element_ids[e] for e in t.end_stop_index], t.end_stop_gap, t.end_stop_stiffness, strict=True)),
+                sorted(zip([m.element_ids[e] for e in t.one_sided_index], t.one_sided_sign, strict=True)),
+                sorted(zip([m.element_ids[e] for e in t.asymmetric_index], t.asymmetric_rebound,
+                           t.asymmetric_compression, strict=True)), curves)  # fmt: skip
+
+    assert tables(made) == tables(whole)
+
+
+def test_changes_of_matrix_values_skip_the_system_of_copies_and_others_build_it(monkeypatch):
+    # Stiffness, damping coefficient and mass changes are made from the base's
+    # assembly; a change the matrices do not hold (a rebound coefficient) builds the
+    # system of copies. Either way each variant equals its own run (above).
+    import lumped.variants as variants
+
+    system = lumped.load(lumped.demo_path("quarter_car"))
+    built = []
+    stacked = variants._stacked
+    monkeypatch.setattr(variants, "_stacked", lambda *args: built.append(args) or stacked(*args))
+    settings = dict(dt=1e-3, duration=0.1, output_rate=100)
+    simulate_variants(system, {"springs.tyre.stiffness": [2e5, 2.5e5], "bodies.body.mass": [300.0, 400.0]},
+                      "rk4", **settings)  # fmt: skip
+    assert built == []
+    simulate_variants(system, {"dampers.suspension_damper.rebound": [1e3, 2e3]}, "rk4", **settings)
+    assert len(built) == 1
