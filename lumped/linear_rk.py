@@ -134,16 +134,16 @@ def lanes_of(model: tuple, program: tuple, n_bodies: int, count: int) -> Lanes |
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _evaluate(y, n, ns, la, lb, lk, lc, m_inv, fbody, fscale, table, U, Ud, Udd, FF, acc, rates, scratch):
-    """Body accelerations and energy rates of one lane at y = (q, v, u, u', u'', F)."""
+def _evaluate(y, n, ns, la, lb, lk, lc, m_inv, fbody, fscale, table, U, Ud, Udd, FF, acc, rates, scratch, empty,
+              pointers):  # fmt: skip
+    """Body accelerations and energy rates of one lane at y = (q, v, u, u', u'', F)
+    (``empty``: no indices; ``pointers``: 0 … n, the diagonal mass's row pointers)."""
     for s in range(ns):
         U[0, s] = y[2 * n + s]
         Ud[0, s] = y[2 * n + ns + s]
         Udd[0, s] = y[2 * n + 2 * ns + s]
     for f in range(fbody.shape[0]):
         FF[0, f] = y[2 * n + 3 * ns + f]
-    empty = np.zeros(0, dtype=np.int64)
-    pointers = np.arange(n + 1)
     model = ((la, lb, lk, lc), empty, empty, table, pointers, pointers[:n], m_inv, fbody, fscale, scratch)
     body_accelerations(y[:n], y[n : 2 * n], U, Ud, Udd, FF, 0, model, acc, rates)
 
@@ -159,12 +159,13 @@ def _probe(la, lb, lk, lc, m_inv, fscale, fbody, ns, table, dynamics, forms):
     y = np.zeros(d)
     U, Ud, Udd, FF = np.zeros((1, ns)), np.zeros((1, ns)), np.zeros((1, ns)), np.zeros((1, nf))
     acc, rates, scratch = np.zeros(n), np.zeros(3), np.zeros(n)
+    empty, pointers = np.zeros(0, dtype=np.int64), np.arange(n + 1)
     single = np.zeros((d, 3))
     for i in range(count):
         for a in range(d):
             y[a] = 1.0
             _evaluate(y, n, ns, la, lb, lk[i], lc[i], m_inv[i], fbody, fscale[i], table, U, Ud, Udd, FF,
-                      acc, rates, scratch)  # fmt: skip
+                      acc, rates, scratch, empty, pointers)  # fmt: skip
             y[a] = 0.0
             dynamics[i, :, a] = acc
             single[a] = rates
@@ -175,7 +176,7 @@ def _probe(la, lb, lk, lc, m_inv, fscale, fbody, ns, table, dynamics, forms):
                 y[a] = 1.0
                 y[b] = 1.0
                 _evaluate(y, n, ns, la, lb, lk[i], lc[i], m_inv[i], fbody, fscale[i], table, U, Ud, Udd, FF,
-                          acc, rates, scratch)  # fmt: skip
+                          acc, rates, scratch, empty, pointers)  # fmt: skip
                 y[a] = 0.0
                 y[b] = 0.0
                 for p in range(3):
@@ -202,9 +203,10 @@ def _evaluate_lanes(y, n, ns, la, lb, lk, lc, m_inv, fbody, fscale, table, acc, 
     nf = fbody.shape[0]
     U, Ud, Udd, FF = np.zeros((1, ns)), np.zeros((1, ns)), np.zeros((1, ns)), np.zeros((1, nf))
     scratch = np.zeros(n)
+    empty, pointers = np.zeros(0, dtype=np.int64), np.arange(n + 1)
     for i in range(y.shape[0]):
         _evaluate(y[i], n, ns, la, lb, lk[i], lc[i], m_inv[i], fbody, fscale[i], table, U, Ud, Udd, FF,
-                  acc[i], rates[i], scratch)  # fmt: skip
+                  acc[i], rates[i], scratch, empty, pointers)  # fmt: skip
 
 
 @dataclass(frozen=True)
@@ -241,33 +243,25 @@ def rk_maps(lanes: Lanes, a: np.ndarray, b: np.ndarray, stage_col: np.ndarray, c
     inputs of row ``stage_col[j]`` of the step's ``columns`` stage times, the step's
     end those of row ``end_col``. Input kinds that reach no lane (u'' without
     inerters, say) are left out."""
-    A, B, S = lanes.A, lanes.B, lanes.forms
-    count, nz, nw = B.shape
+    count, nz, nw = lanes.B.shape
     nx = nz + columns * nw
-    head = np.zeros((nz, nx))
-    head[:, :nz] = np.eye(nz)
 
-    def select(col):
-        out = np.zeros((nw, nx))
-        out[:, nz + col * nw : nz + (col + 1) * nw] = np.eye(nw)
-        return out
+    def last(x):
+        """The lane index moved innermost."""
+        return np.ascontiguousarray(np.moveaxis(x, 0, -1))
 
-    slopes, step, energy = [], np.broadcast_to(head, (count, nz, nx)).copy(), np.zeros((count, 3, nx, nx))
-    rated = np.flatnonzero(np.any(S != 0, axis=(0, 2, 3)))  # the rates some lane has
-    for j in range(len(b)):
-        stage = head + h * sum((a[j, i] * slopes[i] for i in range(j) if a[j, i] != 0.0), np.zeros((count, nz, nx)))
-        inputs = select(stage_col[j])
-        slopes.append(A @ stage + B @ inputs)
-        full = np.concatenate([stage, np.broadcast_to(inputs, (count, nw, nx))], axis=1)[:, None]
-        # (contiguous operands: numpy's batched product of small matrices is twice as fast on them)
-        energy[:, rated] += h * b[j] * (np.ascontiguousarray(np.swapaxes(full, 2, 3)) @ (S[:, rated] @ full))
-        step += h * b[j] * slopes[j]
+    A, B, S = last(lanes.A), last(lanes.B), last(lanes.forms)
+    rated = np.flatnonzero(np.any(S != 0, axis=(1, 2, 3)))  # the rates some lane has
+    step, energy = np.zeros((nz, nx, count)), np.zeros((3, nx, nx, count))
+    work = np.zeros((len(b), nz, nx, count)), np.zeros((nz + nw, nx, count)), np.zeros((nz + nw, nx, count))
+    _tableau_maps(A, B, S, rated, a, b, stage_col.astype(np.int64), h, step, energy, *work)
     n = nz // 2
-    acc_w = B[:, n:, :] @ select(end_col)
+    acc_w = np.zeros((n, nx, count))
+    acc_w[:, nz + end_col * nw : nz + (end_col + 1) * nw] = B[n:]
     ns, nf = len(lanes.program[5]), len(lanes.program[7])
     kinds = [(0, s) for s in range(ns)] + [(1, s) for s in range(ns)] + [(2, s) for s in range(ns)] + [(3, f) for f in range(nf)]
-    reach = (np.any(step[:, :, nz:] != 0, axis=(0, 1)) | np.any(energy[:, :, nz:, :] != 0, axis=(0, 1, 3))
-             | np.any(acc_w[:, :, nz:] != 0, axis=(0, 1))).reshape(columns, nw).any(axis=0)  # fmt: skip
+    reach = (np.any(step[:, nz:] != 0, axis=(0, 2)) | np.any(energy[:, nz:] != 0, axis=(0, 2, 3))
+             | np.any(acc_w[:, nz:] != 0, axis=(0, 2))).reshape(columns, nw).any(axis=0)  # fmt: skip
     used = [kind for kind in range(4) if any(reach[k] for k, (kk, _) in enumerate(kinds) if kk == kind)]
     keep = [(c, k) for c in range(columns) for k, (kind, _) in enumerate(kinds) if kind in used]
     kept = nz + np.array([c * nw + k for c, k in keep], dtype=np.int64)
@@ -275,24 +269,90 @@ def rk_maps(lanes: Lanes, a: np.ndarray, b: np.ndarray, stage_col: np.ndarray, c
     wi, wj = np.triu_indices(len(keep))
 
     def rows(x):
-        """(lanes, …) → (…, lanes) flattened to rows."""
-        return np.ascontiguousarray(np.moveaxis(x, 0, -1).reshape(-1, count))
+        """(…, lanes) flattened to rows."""
+        return x.reshape(-1, count)
 
     def doubled(i, j):
-        return np.where(i == j, 1.0, 2.0)
+        return np.where(i == j, 1.0, 2.0)[:, None]
+
+    def first(x):
+        """The lane index moved outermost."""
+        return np.ascontiguousarray(np.moveaxis(x, -1, 0))
 
     return RKMaps(
-        step=blocked(np.concatenate([rows(step[:, :, :nz]), rows(step[:, :, kept])])),
-        sample=blocked(np.concatenate([rows(A[:, n:, :]), rows(acc_w[:, :, kept]),
-                                       rows(energy[:, :, zi, zj] * doubled(zi, zj)),
-                                       rows(2.0 * energy[:, :, :nz][:, :, :, kept]),
-                                       rows(energy[:, :, kept[wi], kept[wj]] * doubled(wi, wj))])),  # fmt: skip
+        step=blocked(np.concatenate([rows(step[:, :nz]), rows(step[:, kept])])),
+        sample=blocked(np.concatenate([rows(A[n:]), rows(acc_w[:, kept]),
+                                       rows(energy[:, zi, zj] * doubled(zi, zj)),
+                                       rows(2.0 * energy[:, :nz][:, :, kept]),
+                                       rows(energy[:, kept[wi], kept[wj]] * doubled(wi, wj))])),  # fmt: skip
         inputs=tuple((c, *kinds[k]) for c, k in keep),
-        rates=tuple(int(p) for p in np.flatnonzero(np.any(energy != 0, axis=(0, 2, 3)))),
-        free_step=np.ascontiguousarray(step[:, :, :nz]),
-        free_energy=np.ascontiguousarray(energy[:, :, :nz, :nz]),
-        free_acc=np.ascontiguousarray(A[:, n:, :]),
+        rates=tuple(int(p) for p in np.flatnonzero(np.any(energy != 0, axis=(1, 2, 3)))),
+        free_step=first(step[:, :nz]),
+        free_energy=first(energy[:, :nz, :nz]),
+        free_acc=lanes.A[:, n:, :].copy(),
     )
+
+
+@njit(cache=True, error_model="numpy")
+def _tableau_maps(A, B, S, rated, a, b, stage_col, h, step, energy, slopes, full, product):
+    """The explicit tableau (a, b)'s step on every lane of x' = A x + B w, as maps of
+    x = (z, w of every stage time): each stage Y_j = z + h Σᵢ a_ji K_i with the slope
+    K_j = A Y_j + B w(row ``stage_col[j]``), the step z₁ = z + h Σⱼ b_j K_j into
+    ``step`` (nz × nx), and the energy h Σⱼ b_j (Y_j, w_j)ᵀ S_p (Y_j, w_j) of each
+    rate p of ``rated`` into ``energy`` (3 × nx × nx). The lane index is innermost in
+    every array (A: nz × nz × lanes, B: nz × nw × lanes, S: 3 × d × d × lanes), so
+    that the lane loops vectorise; ``slopes``, ``full`` and ``product`` are work space."""
+    nz, nw, count = B.shape
+    nx = step.shape[1]
+    d = nz + nw
+    for r in range(nz):
+        for lane in range(count):
+            step[r, r, lane] = 1.0
+    for j in range(b.shape[0]):
+        column = nz + stage_col[j] * nw
+        # The stage as a map of x, kept in full's first rows; its inputs below them.
+        for r in range(d):
+            for x in range(nx):
+                for lane in range(count):
+                    full[r, x, lane] = 1.0 if (r == x and r < nz) or (r >= nz and x == column + r - nz) else 0.0
+        for i in range(j):
+            if a[j, i] != 0.0:
+                weight = h * a[j, i]
+                for r in range(nz):
+                    for x in range(nx):
+                        for lane in range(count):
+                            full[r, x, lane] += weight * slopes[i, r, x, lane]
+        for r in range(nz):
+            for x in range(nx):
+                for lane in range(count):
+                    slopes[j, r, x, lane] = 0.0
+                for c in range(nz):
+                    for lane in range(count):
+                        slopes[j, r, x, lane] += A[r, c, lane] * full[c, x, lane]
+            for k in range(nw):
+                for lane in range(count):
+                    slopes[j, r, column + k, lane] += B[r, k, lane]
+        if b[j] == 0.0:
+            continue
+        weight = h * b[j]
+        for r in range(nz):
+            for x in range(nx):
+                for lane in range(count):
+                    step[r, x, lane] += weight * slopes[j, r, x, lane]
+        for p in rated:
+            for r in range(d):
+                for x in range(nx):
+                    for lane in range(count):
+                        product[r, x, lane] = 0.0
+                for c in range(d):
+                    for x in range(nx):
+                        for lane in range(count):
+                            product[r, x, lane] += S[p, r, c, lane] * full[c, x, lane]
+            for x in range(nx):
+                for y in range(nx):
+                    for r in range(d):
+                        for lane in range(count):
+                            energy[p, x, y, lane] += weight * full[r, x, lane] * product[r, y, lane]
 
 
 @dataclass(frozen=True)
