@@ -308,8 +308,10 @@ def _tableau_maps(A, B, S, rated, a, b, stage_col, h, step, energy, slopes, full
     for r in range(nz):
         for lane in range(count):
             step[r, r, lane] = 1.0
+    reach = nz  # the columns a stage's maps may have: z and the inputs read so far
     for j in range(b.shape[0]):
         column = nz + stage_col[j] * nw
+        reach = max(reach, column + nw)
         # The stage as a map of x, kept in full's first rows; its inputs below them.
         for r in range(d):
             for x in range(nx):
@@ -341,18 +343,23 @@ def _tableau_maps(A, B, S, rated, a, b, stage_col, h, step, energy, slopes, full
                     step[r, x, lane] += weight * slopes[j, r, x, lane]
         for p in rated:
             for r in range(d):
-                for x in range(nx):
+                for x in range(reach):
                     for lane in range(count):
                         product[r, x, lane] = 0.0
                 for c in range(d):
-                    for x in range(nx):
+                    for x in range(reach):
                         for lane in range(count):
                             product[r, x, lane] += S[p, r, c, lane] * full[c, x, lane]
-            for x in range(nx):
-                for y in range(nx):
+            for x in range(reach):  # the upper triangle (S is symmetric)
+                for y in range(x, reach):
                     for r in range(d):
                         for lane in range(count):
                             energy[p, x, y, lane] += weight * full[r, x, lane] * product[r, y, lane]
+    for p in rated:
+        for x in range(nx):
+            for y in range(x):
+                for lane in range(count):
+                    energy[p, x, y, lane] = energy[p, y, x, lane]
 
 
 @dataclass(frozen=True)

@@ -675,10 +675,8 @@ class _Engine:
         n = matrices.n
         self.q, self.v = (x.copy() for x in prepared.initial)
         self.energy = np.zeros(3)
-        self.out_q = np.zeros((samples, n))
-        self.out_v = np.zeros((samples, n))
-        self.out_a = np.zeros((samples, n))
-        self.out_e = np.zeros((samples, 3))
+        # Rows are written as samples are taken, and only those are read (no zeros to pay for).
+        self.out_q, self.out_v, self.out_a, self.out_e = (np.empty((samples, width)) for width in (n, n, n, 3))
         self.out_step = np.zeros(samples, dtype=np.int64)
         self.count = 0
         self.events: list[Event] = []
