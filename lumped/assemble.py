@@ -28,7 +28,7 @@ import scipy.sparse.linalg as spla
 
 from lumped.model import Damper, Spring, System
 
-__all__ = ["Matrices", "NonlinearElements", "StateSpace", "assemble", "copies", "state_space", "COPY_VALUES", "DENSE_LIMIT"]
+__all__ = ["Matrices", "NonlinearElements", "StateSpace", "assemble", "congruence", "copies", "state_space", "COPY_VALUES", "DENSE_LIMIT"]
 
 #: Up to this many bodies, state-space matrices are dense arrays; above, linear operators.
 DENSE_LIMIT = 2000
@@ -210,14 +210,32 @@ def copies(matrices: Matrices, prefixes: Sequence[str], values: Mapping[str, np.
     )  # fmt: skip
 
 
+def congruence(D: sp.csr_matrix, values: np.ndarray, right: sp.csr_matrix | None = None,
+               diagonal: np.ndarray | None = None) -> sp.csr_matrix:  # fmt: skip
+    """``Dᵀ diag(values) right`` (``right`` defaults to ``D``), plus ``diag(diagonal)``
+    when given: each element's product of its two incidence rows, summed, with no
+    explicit zeros. Written as one sum of entries, since the few sparse products of
+    the formula cost more than the sum for the small systems most runs are (a
+    sparse product costs some 0.3 ms however small)."""
+    right = D if right is None else right
+    D, right = D.tocsr(), right.tocsr()
+    rows = np.repeat(np.arange(D.shape[0]), np.diff(D.indptr))  # the element of each entry of D
+    pairs = np.diff(right.indptr)[rows]  # entries of right in that element's row
+    first = np.repeat(right.indptr[rows], pairs)
+    k = first + np.arange(first.size) - np.repeat(np.cumsum(pairs) - pairs, pairs)
+    i, j = np.repeat(D.indices, pairs), right.indices[k]
+    data = np.repeat(D.data * values[rows], pairs) * right.data[k]
+    if diagonal is not None:
+        i, j = np.concatenate([np.arange(len(diagonal)), i]), np.concatenate([np.arange(len(diagonal)), j])
+        data = np.concatenate([diagonal, data])
+    product = sp.csr_matrix((data, (i, j)), shape=(D.shape[1], right.shape[1]))
+    product.eliminate_zeros()
+    return product
+
+
 def _matrices(body_ids, support_ids, element_ids, element_kinds, mass, stiffness, damping, inertance, preload,
               D, D_s, **rest) -> Matrices:  # fmt: skip
     """:class:`Matrices` from the incidences and element values (the module's formulas)."""
-    Dt = D.T.tocsr()
-
-    def congruence(values: np.ndarray, right: sp.csr_matrix) -> sp.csr_matrix:
-        return (Dt @ sp.diags_array(values) @ right).tocsr()
-
     return Matrices(
         body_ids=body_ids,
         support_ids=support_ids,
@@ -230,12 +248,12 @@ def _matrices(body_ids, support_ids, element_ids, element_kinds, mass, stiffness
         preload=preload,
         D=D,
         D_s=D_s,
-        M=(sp.diags_array(mass) + congruence(inertance, D)).tocsr(),
-        C=congruence(damping, D),
-        K=congruence(stiffness, D),
-        M_s=congruence(inertance, D_s),
-        C_s=congruence(damping, D_s),
-        K_s=congruence(stiffness, D_s),
+        M=congruence(D, inertance, diagonal=mass),
+        C=congruence(D, damping),
+        K=congruence(D, stiffness),
+        M_s=congruence(D, inertance, D_s),
+        C_s=congruence(D, damping, D_s),
+        K_s=congruence(D, stiffness, D_s),
         **rest,
     )
 

@@ -29,10 +29,9 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-import scipy.sparse as sp
 from scipy.optimize import minimize_scalar
 
-from lumped.assemble import DENSE_LIMIT, Matrices
+from lumped.assemble import DENSE_LIMIT, Matrices, congruence
 from lumped.errors import LumpedError
 from lumped.modal import UNDAMPED_ZETA, damped_eigenvalues, stiffest_mode
 from lumped.steppers import RungeKuttaStepper, Stepper, implicit_coefficients
@@ -467,11 +466,10 @@ def stiffest_state(matrices: Matrices) -> Matrices | None:
         v = nl.curve_velocity[nl.curve_offset[j]:nl.curve_offset[j + 1]]
         f = nl.curve_force[nl.curve_offset[j]:nl.curve_offset[j + 1]]
         damping[e] = float(np.max(np.diff(f) / np.diff(v)))
-    D, Dt = matrices.D, matrices.D.T.tocsr()
     return dataclasses.replace(
         matrices,
         stiffness=stiffness,
         damping=damping,
-        K=(Dt @ sp.diags_array(stiffness) @ D).tocsr(),
-        C=(Dt @ sp.diags_array(damping) @ D).tocsr(),
+        K=congruence(matrices.D, stiffness),
+        C=congruence(matrices.D, damping),
     )

@@ -18,7 +18,7 @@ import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 from scipy.sparse.csgraph import connected_components
 
-from lumped.assemble import Matrices
+from lumped.assemble import Matrices, congruence
 from lumped.errors import LumpedError
 
 __all__ = ["StaticState", "StaticError", "static_equilibrium", "MAX_NEWTON_ITERATIONS"]
@@ -110,7 +110,7 @@ def static_equilibrium(matrices: Matrices) -> StaticState:
 def _solve_linear(m: Matrices, active: np.ndarray, weight: np.ndarray) -> np.ndarray:
     """Body displacements with only the ``active`` springs: K_A q = weight − D_bᵀ p_A."""
     k = np.where(active, m.stiffness, 0.0)
-    K = (m.D.T @ sp.diags_array(k) @ m.D).tocsc()
+    K = congruence(m.D, k).tocsc()
     rhs = weight - m.D.T @ np.where(active, m.preload, 0.0)
     free = _unheld_components(m, k)
     if free:

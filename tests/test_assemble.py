@@ -589,3 +589,30 @@ def test_the_system_graph_is_what_networkx_builds_from_the_same_items(name, monk
     assert nx.utils.graphs_equal(graph, reference)
     for u, v in reference.edges():
         assert graph._adj[u][v] is graph._adj[v][u]
+
+
+@given(st.integers(0, 10_000), st.integers(2, 12), st.integers(0, 4), st.integers(1, 30))
+@settings(max_examples=40, deadline=None)
+def test_congruence_is_scipys_product_of_the_incidence(seed, bodies, supports, elements):
+    # Dᵀ diag(x) R summed element by element equals scipy.sparse's product of the
+    # three matrices; zero values leave no stored entries (a coupling block with no
+    # inerter must have none: the engine reads its entries).
+    import scipy.sparse as sp
+
+    from lumped.assemble import congruence
+
+    rng = np.random.default_rng(seed)
+    nodes = bodies + supports
+    ends = np.array([rng.choice(nodes, size=2, replace=False) for _ in range(elements)])
+    signed = sp.csr_matrix((np.tile([-1.0, 1.0], elements), (np.repeat(np.arange(elements), 2), ends.ravel())),
+                           shape=(elements, nodes))  # fmt: skip
+    D, D_s = signed[:, :bodies].tocsr(), signed[:, bodies:].tocsr()
+    values = rng.uniform(0.5, 2.0, elements) * (rng.random(elements) < 0.7)
+    mass = rng.uniform(1.0, 3.0, bodies)
+    expected = D.T @ sp.diags_array(values) @ D
+    np.testing.assert_allclose(congruence(D, values).toarray(), expected.toarray(), rtol=1e-14, atol=0)
+    np.testing.assert_allclose(congruence(D, values, D_s).toarray(), (D.T @ sp.diags_array(values) @ D_s).toarray(),
+                               rtol=1e-14, atol=0)  # fmt: skip
+    np.testing.assert_allclose(congruence(D, values, diagonal=mass).toarray(), expected.toarray() + np.diag(mass),
+                               rtol=1e-14, atol=0)  # fmt: skip
+    assert not np.any(congruence(D, np.zeros(elements), D_s).data != 0) and congruence(D, np.zeros(elements)).nnz == 0
