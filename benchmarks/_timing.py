@@ -1,4 +1,4 @@
-"""Shared timing helper of the benchmark scripts: median wall time of repeats."""
+"""Shared timing helpers of the benchmark scripts: median wall times of repeats."""
 
 from __future__ import annotations
 
@@ -14,3 +14,16 @@ def median_time(function, repeats: int = 5) -> tuple[float, object]:
         result = function()
         times.append(time.perf_counter() - start)
     return statistics.median(times), result
+
+
+def in_turns(first, second, repeats: int) -> tuple[float, float]:
+    """Medians of ``repeats`` wall times of ``first()`` and ``second()``, timed in
+    turns (first, second, first, …): on a shared machine whose speed drifts over
+    minutes, both then meet the same machine, and the ratio of the medians holds."""
+    times: tuple[list, list] = ([], [])
+    for _ in range(repeats):
+        for function, kept in zip((first, second), times, strict=True):
+            start = time.perf_counter()
+            function()
+            kept.append(time.perf_counter() - start)
+    return statistics.median(times[0]), statistics.median(times[1])

@@ -24,11 +24,10 @@ its structure (lumped.linear_rk), compiled first by the script.
 Run: python benchmarks/variants_corner.py [VARIANTS]
 """
 
-import statistics
 import sys
-import time
 
 import numpy as np
+from _timing import in_turns
 from corner_rk4 import linear_corner
 from scipy.integrate import solve_ivp
 
@@ -39,17 +38,6 @@ from lumped.simulate import simulate
 from lumped.variants import _stacked, simulate_variants, variant_system
 
 TARGET_IVP, TARGET_SINGLE = 10.0, 20.0
-
-
-def in_turns(first, second, repeats: int) -> tuple[float, float]:
-    """Medians of ``repeats`` wall times of ``first()`` and ``second()``, timed in turns."""
-    times: tuple[list, list] = ([], [])
-    for _ in range(repeats):
-        for function, kept in zip((first, second), times, strict=True):
-            start = time.perf_counter()
-            function()
-            kept.append(time.perf_counter() - start)
-    return statistics.median(times[0]), statistics.median(times[1])
 
 
 def verdict(ratio: float, target: float) -> str:
