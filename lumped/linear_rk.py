@@ -388,7 +388,8 @@ def free_maps(maps: RKMaps, every: int) -> FreeMaps:
         (pa, ea), (pb, eb) = first, second
         return pb @ pa, ea + np.swapaxes(pa, 1, 2)[:, None] @ eb @ pa[:, None]
 
-    power, total, left = (maps.free_step, maps.free_energy), None, every
+    rated = np.flatnonzero(np.any(maps.free_energy != 0, axis=(0, 2, 3)))  # the others stay zero
+    power, total, left = (maps.free_step, maps.free_energy[:, rated]), None, every
     with np.errstate(over="ignore", invalid="ignore"):  # an unstable step: the kernel reports it
         while left:
             if left & 1:
@@ -397,9 +398,10 @@ def free_maps(maps: RKMaps, every: int) -> FreeMaps:
             if left:
                 power = join(power, power)
     phi, energy = total
-    nz = phi.shape[1]
+    count, nz = phi.shape[:2]
     first, second = np.triu_indices(nz)
-    pairs = (energy + np.swapaxes(energy, 2, 3))[:, :, first, second] * np.where(first == second, 0.5, 1.0)
+    pairs = np.zeros((count, 3, len(first)))
+    pairs[:, rated] = (energy + np.swapaxes(energy, 2, 3))[:, :, first, second] * np.where(first == second, 0.5, 1.0)
     rates = np.flatnonzero(np.any(pairs != 0, axis=(0, 2)))
 
     def innermost(x):
