@@ -171,25 +171,32 @@ def assemble(system: System | nx.MultiGraph) -> Matrices:
     )
 
 
-#: The per-copy values :func:`copies` may replace: per-body ``mass`` and these per-element arrays.
+#: The arrays whose values :func:`copies` may change per copy: per-body ``mass``, and
+#: per element ``stiffness``, ``damping``, ``inertance`` and ``preload``.
 COPY_VALUES = ("mass", "stiffness", "damping", "inertance", "preload")
 
 
-def copies(matrices: Matrices, prefixes: Sequence[str], values: Mapping[str, np.ndarray] | None = None) -> Matrices:
+def copies(matrices: Matrices, prefixes: Sequence[str], changes: Mapping[tuple[str, str], np.ndarray]) -> Matrices:
     """``len(prefixes)`` copies of ``matrices`` side by side: block-diagonal, the
     supports shared (a support is a prescribed motion, the same for every copy), copy
     i's bodies, elements and force items named ``prefixes[i] + id`` and laid copy by
-    copy. ``values`` replaces any of :data:`COPY_VALUES` per copy: an array (copies,
-    bodies) for ``mass`` (kg), (copies, elements) for the others (SI). What
-    :func:`assemble` gives for the copies laid out as one system, at the cost of a
-    few array operations."""
+    copy. ``changes`` gives per copy new values (SI) of one of :data:`COPY_VALUES` of
+    one body or element: ``{("stiffness", "tyre"): [...], ("mass", "body"): [...]}``
+    (the kernels read ``damping`` only for linear dampers, ``stiffness`` for every
+    spring). What :func:`assemble` gives for the copies laid out as one system, at
+    the cost of a few array operations."""
     count = len(prefixes)
     per_copy = {name: np.broadcast_to(getattr(matrices, name), (count, len(getattr(matrices, name))))
                 for name in COPY_VALUES}  # fmt: skip
-    for name, array in (values or {}).items():
+    for (name, item), values in changes.items():
         if name not in per_copy:
             raise ValueError(f"copies: {name!r} is not one of {', '.join(COPY_VALUES)}")
-        per_copy[name] = np.asarray(array, dtype=float).reshape(per_copy[name].shape)
+        ids = matrices.body_ids if name == "mass" else matrices.element_ids
+        if item not in ids:
+            raise ValueError(f"copies: no {'body' if name == 'mass' else 'element'} {item!r}")
+        if not per_copy[name].flags.writeable:
+            per_copy[name] = per_copy[name].copy()
+        per_copy[name][:, ids.index(item)] = values
 
     def named(ids):
         return tuple(p + i for p in prefixes for i in ids)
@@ -213,7 +220,7 @@ def copies(matrices: Matrices, prefixes: Sequence[str], values: Mapping[str, np.
 def congruence(D: sp.csr_matrix, values: np.ndarray, right: sp.csr_matrix | None = None,
                diagonal: np.ndarray | None = None) -> sp.csr_matrix:  # fmt: skip
     """``Dᵀ diag(values) right`` (``right`` defaults to ``D``), plus ``diag(diagonal)``
-    when given: each element's product of its two incidence rows, summed, with no
+    when given (a square product): each element's product of its incidence rows, summed, with no
     explicit zeros. Written as one sum of entries, since the few sparse products of
     the formula cost more than the sum for the small systems most runs are (a
     sparse product costs some 0.3 ms however small)."""

@@ -23,7 +23,9 @@ Lanes: variants laid side by side (:mod:`lumped.variants`) form a block-diagonal
 system whose blocks share their structure and the inputs. Each block is a lane
 with maps of its own; the inputs are evaluated once per step for all lanes, and the
 lanes of a block of :data:`LANE_BLOCK` are stepped together through a chunk of
-steps while their maps stay in the first-level cache.
+steps while their maps stay in the first-level cache. Free stretches (no input
+acting) go one sample interval at a time for every lane (:func:`free_chunk`), so
+that the samples are written row after row.
 """
 
 from __future__ import annotations

@@ -430,7 +430,7 @@ def _huge_pages_free(path: str = "/proc/buddyinfo") -> int:
     for line in lines:  # "Node 0, zone   Normal   8920   6152 …": free blocks of 1, 2, 4 … pages
         for order, count in enumerate(line.split()[4:]):
             if page << order >= 2**21:
-                total += int(count) * (page << order)
+                total += int(count) * (page << order) if count.isdigit() else 0
     return total
 
 
@@ -523,32 +523,36 @@ def prepare(system: System, lanes: int = 1) -> Prepared:
     lumped.static.StaticError
         No static equilibrium.
     """
-    matrices = assemble(system)
-    if matrices.n == 0:
-        raise RunError("the system has no bodies")
-    inputs = _inputs(system, matrices)
-    force_body = np.array([matrices.body_ids.index(system.forces[f].on) for f in matrices.force_ids], dtype=np.int64)
-    initial = tuple(np.array([getattr(system.bodies[b], name) for b in matrices.body_ids], dtype=float)
-                    for name in ("initial_displacement", "initial_velocity"))  # fmt: skip
-    return _prepared(system, matrices, inputs, force_body, initial, lanes)
+    return _prepared(system, *_assembled(system), lanes)
 
 
 @_plain_pages()
-def prepare_copies(prepared: Prepared, prefixes: Sequence[str], values: Mapping[str, np.ndarray]) -> Prepared:
-    """What :func:`prepare` gives for ``len(prefixes)`` copies of ``prepared``'s system
-    laid side by side (bodies and elements copy by copy, copy i's ids prefixed
-    ``prefixes[i]``, the supports and inputs shared), with per-copy ``values`` of
-    :data:`lumped.assemble.COPY_VALUES` — made from ``prepared`` by array operations,
-    with no system of copies built (see :func:`lumped.assemble.copies`). The result's
-    ``system`` is the one copied."""
-    count, n = len(prefixes), prepared.matrices.n
-    matrices = copies(prepared.matrices, prefixes, values)
-    inputs = prepared.inputs
+def prepare_copies(system: System, prefixes: Sequence[str], changes: Mapping[tuple[str, str], np.ndarray]) -> Prepared:
+    """What :func:`prepare` gives for ``len(prefixes)`` copies of ``system`` laid side
+    by side (bodies and elements copy by copy, copy i's ids prefixed ``prefixes[i]``,
+    the supports and inputs shared), with per-copy ``changes`` of matrix values as
+    :func:`lumped.assemble.copies` takes them — made from the system's assembly by
+    array operations, with no system of copies built. The result's ``system`` is
+    ``system``; only the copies need a static equilibrium."""
+    count = len(prefixes)
+    matrices, inputs, force_body, initial = _assembled(system)
     program = (*inputs.program[:7], np.tile(inputs.program[7], count))
-    force_body = (prepared.model[7][None, :] + n * np.arange(count)[:, None]).ravel()
     copied = _Inputs(inputs.supports, np.tile(inputs.scales, count), program)
-    initial = tuple(np.tile(x, count) for x in prepared.initial)
-    return _prepared(prepared.system, matrices, copied, force_body, initial, count)
+    force_body = (force_body[None, :] + matrices.n * np.arange(count)[:, None]).ravel()
+    initial = tuple(np.tile(x, count) for x in initial)
+    return _prepared(system, copies(matrices, prefixes, changes), copied, force_body, initial, count)
+
+
+def _assembled(system: System) -> tuple:
+    """The system's matrices, inputs, the body each force item acts on and the
+    bodies' initial displacements and velocities: what :func:`_prepared` starts from."""
+    matrices = assemble(system)
+    if matrices.n == 0:
+        raise RunError("the system has no bodies")
+    force_body = np.array([matrices.body_ids.index(system.forces[f].on) for f in matrices.force_ids], dtype=np.int64)
+    initial = tuple(np.array([getattr(system.bodies[b], name) for b in matrices.body_ids], dtype=float)
+                    for name in ("initial_displacement", "initial_velocity"))  # fmt: skip
+    return matrices, _inputs(system, matrices), force_body, initial
 
 
 def _prepared(system, matrices, inputs, force_body, initial, lanes) -> Prepared:
@@ -1202,17 +1206,6 @@ class _Engine:
         if order is not None:
             element_ids = tuple(element_ids[e] for e in order)
             element_kinds = tuple(element_kinds[e] for e in order)
-        mass = self.m.mass
-
-        @_plain_pages()
-        def element_series():
-            ne = len(element_ids)
-            deflection, force = np.empty((count, ne)), np.empty((count, ne))
-            stored, inerter_energy = np.empty(count), np.empty(count)
-            ends = (np.ascontiguousarray(x) for x in (q, v, a, u, ud, udd))  # one layout for the compiled loop
-            kernels.element_series(*ends, *table.args(), deflection, force, stored, inerter_energy, np.empty(ne))
-            return deflection, force, stored, 0.5 * ((v * v) @ mass) + inerter_energy
-
         events = self._events()
         return RunResult(
             system_name=self.system.name,
@@ -1234,7 +1227,7 @@ class _Engine:
             dissipated=self.out_e[:count, 0].copy(),
             support_work=self.out_e[:count, 1].copy(),
             force_work=self.out_e[:count, 2].copy(),
-            element_series=element_series,
+            element_series=_ElementSeries(q, v, a, u, ud, udd, table, self.m.mass),
             events=events,
             status=status,
             message=message,
@@ -1258,6 +1251,31 @@ class _Engine:
         if self.n_ev > self.ev_capacity:
             out.append(Event(math.nan, "", f"{self.n_ev - self.ev_capacity} more events not kept"))
         return sorted(out, key=lambda e: (e.time, e.element))
+
+
+@dataclass(frozen=True)
+class _ElementSeries:
+    """A run's element channels, worked out from its samples (SI) when called:
+    (deflection, force, stored, kinetic). A plain object of arrays, so that a run
+    pickles (a batch handed to another process) whether or not they were read."""
+
+    q: np.ndarray
+    v: np.ndarray
+    a: np.ndarray
+    u: np.ndarray
+    ud: np.ndarray
+    udd: np.ndarray
+    table: _Elements
+    mass: np.ndarray
+
+    def __call__(self) -> tuple[np.ndarray, ...]:
+        count, ne = len(self.q), len(self.table.ea)
+        with _plain_pages():
+            deflection, force = np.empty((count, ne)), np.empty((count, ne))
+            stored, inerter_energy = np.empty(count), np.empty(count)
+            ends = (np.ascontiguousarray(x) for x in (self.q, self.v, self.a, self.u, self.ud, self.udd))
+            kernels.element_series(*ends, *self.table.args(), deflection, force, stored, inerter_energy, np.empty(ne))
+        return deflection, force, stored, 0.5 * ((self.v * self.v) @ self.mass) + inerter_energy
 
 
 def _keep_spare(spare: dict, key: tuple, arrays: tuple) -> None:

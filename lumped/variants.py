@@ -18,7 +18,6 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from lumped.assemble import Matrices
 from lumped.errors import LumpedError
 from lumped.model import System, check_system
 from lumped.simulate import Event, RunResult, prepare, prepare_copies, simulate
@@ -207,9 +206,9 @@ def _stacked(base: System, values: Mapping[str, np.ndarray], count: int) -> Syst
     return dataclasses.replace(base, name=f"{base.name} ({count} variants)", **groups)
 
 
-#: The changes :func:`simulate_variants` makes from the base's matrices (group, field →
-#: the matrices' per-copy array, see :data:`lumped.assemble.COPY_VALUES`). The rules
-#: on these fields are bounds, so :func:`_check_extremes` checks every value.
+#: The changes :func:`simulate_variants` makes on copies of the base's matrices (group,
+#: field → the matrices' array, see :func:`lumped.assemble.copies`). The rules on these
+#: fields are bounds, so :func:`_values_fit` checks every value by the extremes.
 _COPY_FIELDS = {
     ("bodies", "mass"): "mass",
     ("springs", "stiffness"): "stiffness",
@@ -226,30 +225,16 @@ def _copyable(system: System, path: str) -> bool:
     return (group, field) in _COPY_FIELDS and not (group == "dampers" and system.dampers[item_id].coefficient is None)
 
 
-def _copy_values(system: System, matrices: Matrices, values: Mapping[str, np.ndarray]) -> dict[str, np.ndarray]:
-    """The changes (each :func:`_copyable`) as per-copy arrays of ``matrices`` (the
-    base's): {"stiffness": (count, elements), "mass": (count, bodies), …}."""
-    count = len(next(iter(values.values())))
-    out: dict[str, np.ndarray] = {}
-    for path, v in values.items():
-        group, item_id, field = _parse(path, system)
-        name = _COPY_FIELDS[group, field]
-        if name not in out:
-            out[name] = np.tile(getattr(matrices, name), (count, 1))
-        ids = matrices.body_ids if name == "mass" else matrices.element_ids
-        out[name][:, ids.index(item_id)] = v
-    return out
-
-
-def _check_extremes(system: System, values: Mapping[str, np.ndarray]) -> None:
-    """Each change at its smallest and largest value checked as a variant system of
-    its own; a problem names the first variant with that value."""
+def _values_fit(system: System, values: Mapping[str, np.ndarray]) -> bool:
+    """True when each change, at its smallest and at its largest value, passes the
+    checks as a variant system of its own (all values do then: see :data:`_COPY_FIELDS`)."""
     for path, v in values.items():
         for i in {int(np.argmin(v)), int(np.argmax(v))}:
             try:
                 variant_system(system, {path: v[i]})
-            except VariantError as exc:
-                raise VariantError(f"variant {i}: {exc}") from None
+            except VariantError:
+                return False
+    return True
 
 
 def simulate_variants(
@@ -286,14 +271,15 @@ def simulate_variants(
     count = lengths.pop()
     _refuse(check_system(system), str)
     settings = (stepper, dt, duration, output_rate, output_every)
-    element_ids = tuple(system.elements)
-    if all(_copyable(system, path) for path in values):
+    prefixes = [_prefix(i) for i in range(count)]
+    if all(_copyable(system, path) for path in values) and _values_fit(system, values):
         # Every change is a value of the assembled matrices: the copies are made from the
-        # base's set-up by array operations (no system of copies is built).
-        _check_extremes(system, values)
-        base = prepare(system)
-        copied = _copy_values(system, base.matrices, values)
-        prepared = prepare_copies(base, [_prefix(i) for i in range(count)], copied)
+        # system's assembly by array operations (no system of copies is built).
+        changes = {}
+        for path, v in values.items():
+            group, item_id, field = _parse(path, system)
+            changes[_COPY_FIELDS[group, field], item_id] = v
+        prepared = prepare_copies(system, prefixes, changes)
     else:
         stacked = _stacked(system, values, count)
         # One check of every variant's values; each variant's graph is the base's, checked above.
@@ -302,10 +288,10 @@ def simulate_variants(
         # channels are put in variant order, and each variant's are a view.
         prepared = prepare(stacked, lanes=count)
         position = {element: k for k, element in enumerate(prepared.matrices.element_ids)}
-        order = np.array([position[_prefix(i) + x] for i in range(count) for x in element_ids], dtype=np.int64)
+        order = np.array([position[p + x] for p in prefixes for x in system.elements], dtype=np.int64)
         prepared = dataclasses.replace(prepared, element_order=order)
     batch = simulate(prepared, *settings, check=False, specialise=specialise)
-    n = len(system.bodies)
+    n, ne = len(batch.body_ids) // count, len(batch.element_ids) // count
     events: list[list[Event]] = [[] for _ in range(count)]
     for event in batch.events:
         head, _, rest = event.element.partition("_")
@@ -316,7 +302,7 @@ def simulate_variants(
         parameters=values,
         time=batch.time,
         body_ids=tuple(b[len(first):] for b in batch.body_ids[:n]),
-        element_ids=element_ids,
+        element_ids=tuple(e[len(first):] for e in batch.element_ids[:ne]),
         displacement=_by_variant(batch.displacement, count),
         velocity=_by_variant(batch.velocity, count),
         acceleration=_by_variant(batch.acceleration, count),

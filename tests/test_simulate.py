@@ -1340,3 +1340,5 @@ def test_free_blocks_of_two_mebibytes_are_counted_from_the_kernels_table(tmp_pat
     if os.sysconf("SC_PAGE_SIZE") == 4096:
         assert _huge_pages_free(str(table)) == (1 + 15) * 2**21 + (3 + 206) * 2**22
     assert _huge_pages_free(str(tmp_path / "missing")) == 0
+    table.write_text("Node 0, zone   Normal   8920   ?\nNode 0\n")  # a table this reading does not know
+    assert _huge_pages_free(str(table)) == 0

@@ -119,14 +119,13 @@ def test_copies_of_the_matrices_equal_the_assembly_of_the_copies_laid_out_as_one
     # out as one system gives (the general path), element rows matched by id. The
     # demos (invented) bring end stops, lifting tyres and tabulated dampers.
     from lumped.assemble import copies
-    from lumped.variants import _copy_values, _stacked
+    from lumped.variants import _stacked
 
     system = lumped.load(lumped.demo_path(name))
     spring, body = next(iter(system.springs)), next(iter(system.bodies))
-    values = {f"springs.{spring}.stiffness": np.array([1e4, 2e4, 3e4]), f"bodies.{body}.mass": np.array([5.0, 50.0, 500.0])}
-    whole = lumped.assemble(_stacked(system, values, 3))
-    base = lumped.assemble(system)
-    made = copies(base, ["v0_", "v1_", "v2_"], _copy_values(system, base, values))
+    stiffness, mass = np.array([1e4, 2e4, 3e4]), np.array([5.0, 50.0, 500.0])
+    whole = lumped.assemble(_stacked(system, {f"springs.{spring}.stiffness": stiffness, f"bodies.{body}.mass": mass}, 3))
+    made = copies(lumped.assemble(system), ["v0_", "v1_", "v2_"], {("stiffness", spring): stiffness, ("mass", body): mass})
     assert made.body_ids == whole.body_ids and made.support_ids == whole.support_ids
     assert made.force_ids == whole.force_ids and sorted(made.element_ids) == sorted(whole.element_ids)
     rows = np.array([whole.element_ids.index(e) for e in made.element_ids])
@@ -169,3 +168,33 @@ def test_changes_of_matrix_values_skip_the_system_of_copies_and_others_build_it(
     assert built == []
     simulate_variants(system, {"dampers.suspension_damper.rebound": [1e3, 2e3]}, "rk4", **settings)
     assert len(built) == 1
+
+
+def test_a_base_without_equilibrium_of_its_own_runs_variants_that_have_one():
+    # The base's mount stiffness is a placeholder (0: nothing holds the press); each
+    # variant's is real. Only the variants need a static equilibrium, as each
+    # variant's own run does (the machine demo is invented).
+    import dataclasses
+
+    system = lumped.load(lumped.demo_path("machine_on_mounts"))
+    base = dataclasses.replace(system, springs={**system.springs, "mounts": dataclasses.replace(
+        system.springs["mounts"], stiffness=0.0)})  # fmt: skip
+    changes = {"springs.mounts.stiffness": [0.8e6, 1.1e6]}
+    runs = simulate_variants(base, changes, "rk4", dt=1e-3, duration=0.2, output_rate=100)
+    for i in range(2):
+        single = simulate(runs.system(i), "rk4", dt=1e-3, duration=0.2, output_rate=100)
+        np.testing.assert_array_equal(runs.displacement[i], single.displacement)
+
+
+def test_runs_and_batches_pickle_before_and_after_their_element_channels_are_read():
+    # A batch is handed to other processes (design sweeps): its runs must pickle, the
+    # element channels worked out or not.
+    import pickle
+
+    system = lumped.load(lumped.demo_path("quarter_car"))
+    runs = simulate_variants(system, {"springs.tyre.stiffness": [2e5, 2.4e5]}, "rk4", dt=1e-3, duration=0.3)
+    again = pickle.loads(pickle.dumps(runs))
+    np.testing.assert_array_equal(again.force, runs.force)
+    single = simulate(system, "rk4", 1e-3, 0.3)
+    single.force  # noqa: B018 (read, so that the worked-out channels pickle too)
+    np.testing.assert_array_equal(pickle.loads(pickle.dumps(single)).stored, single.stored)
