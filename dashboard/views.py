@@ -566,6 +566,8 @@ def _results(system: lumped.System, system_key: str, current_key: tuple | None) 
     if error:
         st.warning(_md(error), icon=":material/warning:")
     else:
+        for note in rows.notes:
+            st.warning(_md(note), icon=":material/warning:")
         _figures_table(rows, "run_figures_table")
         _covered_note(system, items)
 

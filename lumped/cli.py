@@ -345,6 +345,7 @@ def cmd_run(args) -> int:
         bodies = [b.strip() for b in args.ride.split(",")] if args.ride else None
         rows = run_figures(system, result, bodies=bodies, start=args.settle)
         summary["figures"] = [row.to_json() for row in rows]
+        summary["warnings"] += rows.notes
     if args.json:
         _print_json(summary)
     elif not args.quiet:

@@ -36,12 +36,13 @@ from lumped.assemble import Matrices, assemble
 from lumped.errors import LumpedError
 from lumped.excitation import ROAD_BAND, RoadSignal
 from lumped.frequency import POINTS_PER_DECADE, frequency_grid, frequency_response
-from lumped.iso2631 import get_weighting, weighted_signal, weighting_response
+from lumped.iso2631 import MIN_SAMPLE_RATE, get_weighting, weighted_signal, weighting_response
 from lumped.model import ISO_8608_CLASSES, RoadInput, Spring, System
 from lumped.static import static_equilibrium
 
 __all__ = [
     "Figure",
+    "Figures",
     "FigureError",
     "run_figures",
     "road_figures",
@@ -233,6 +234,15 @@ def _uniform_rate(time: np.ndarray) -> tuple[float, int]:
     return 1.0 / step, count
 
 
+class Figures(list):
+    """The rows of a figures table (a list of :class:`Figure`), and ``notes``: the
+    figures left out and why (text for people)."""
+
+    def __init__(self, rows=(), notes=()):
+        super().__init__(rows)
+        self.notes = list(notes)
+
+
 def run_figures(
     system: System,
     result,
@@ -250,7 +260,9 @@ def run_figures(
     system : System
         The system that was run (for gaps and static loads).
     result : RunResult
-        The run; its samples must be evenly spaced at ≥ 160 Hz for the weighting.
+        The run; the frequency-weighted figures need evenly spaced samples at
+        ≥ 160 Hz (:data:`lumped.iso2631.MIN_SAMPLE_RATE`); from coarser samples they
+        are left out, and the table's ``notes`` say so.
     bodies, travel, loads : ids, optional
         Bodies for ride figures, elements for travel, elements for load figures
         (defaults: :func:`default_items`).
@@ -289,6 +301,10 @@ def run_figures(
     rows = static_figures(system, matrices, chosen_b, static)
 
     rate, uniform = _uniform_rate(time) if chosen_b else (math.nan, len(time))
+    weighted = rate >= MIN_SAMPLE_RATE
+    notes = [] if weighted or not chosen_b else [
+        f"no frequency-weighted figures (a_w, crest factor, VDV): the samples come at {rate:.6g} Hz, and the "
+        f"{w.name} weighting, which reaches 80 Hz, needs at least {MIN_SAMPLE_RATE:g} Hz; raise the output rate"]  # fmt: skip
     window = time >= start
     weights = _window_weights(time, window)
     span = f"over {time[window][0]:g}–{time[-1]:g} s"
@@ -296,12 +312,16 @@ def run_figures(
     uniform_weights = _window_weights(time[:uniform], uniform_window)
     for b in chosen_b:
         a = np.asarray(result.acceleration[:, _index(result.body_ids)[b]], dtype=float)
-        aw = weighted_signal(a[:uniform], rate, w)
-        aw_rms = rms(aw, uniform_weights)
         rows += [
             Figure("acceleration_rms", "RMS acceleration", rms(a, weights), "m/s^2", f"{COMMON}, {span}", b, "run"),
             Figure("acceleration_peak", "peak acceleration", float(np.max(np.abs(a[window]))), "m/s^2",
                    f"{COMMON}, largest |a| {span}", b, "run"),
+        ]  # fmt: skip
+        if not weighted:
+            continue
+        aw = weighted_signal(a[:uniform], rate, w)
+        aw_rms = rms(aw, uniform_weights)
+        rows += [
             Figure("weighted_acceleration_rms", f"frequency-weighted RMS acceleration a_w ({w.name})", aw_rms,
                    "m/s^2", f"{ISO2631}, {w.name} weighting, RMS {span}", b, "run"),
             Figure("crest_factor", f"crest factor ({w.name})", crest_factor(aw[uniform_window], uniform_weights[uniform_window]),
@@ -328,7 +348,7 @@ def run_figures(
     for e in chosen_l:
         rows += _run_load_rows(e, np.asarray(result.force[:, _index(result.element_ids)[e]], dtype=float),
                                static.force_in(e), weights, span, _one_sided(system, e))  # fmt: skip
-    return rows
+    return Figures(rows, notes)
 
 
 def _window_weights(time: np.ndarray, window: np.ndarray) -> np.ndarray:
