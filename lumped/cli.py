@@ -75,8 +75,7 @@ def _add_analysis_commands(commands) -> None:
                        help=f"stepper id, one of: {', '.join(STEPPERS)} (default: the file's [run])")
     check.add_argument("--dt", type=_quantity_arg("time"), help='time step, s or with units ("0.5 ms")')
     check.add_argument("--duration", type=_quantity_arg("time"), help="run length, s or with units")
-    check.add_argument("--beta", type=float, help="Newmark β (newmark only)")
-    check.add_argument("--gamma", type=float, help="Newmark γ (newmark only)")
+    _newmark_arguments(check)
     check.add_argument("--json", action="store_true", help="the verdict as JSON on stdout")
 
     from lumped.simulate import ADAPTIVE_METHODS
@@ -87,6 +86,7 @@ def _add_analysis_commands(commands) -> None:
                      help=f"stepper id (default: the file's [run]); also {', '.join(ADAPTIVE_METHODS)}")
     run.add_argument("--dt", type=_quantity_arg("time"), help="time step, s or with units")
     run.add_argument("--duration", type=_quantity_arg("time"), help="run length, s or with units")
+    _newmark_arguments(run)
     run.add_argument("--output-rate", type=_quantity_arg("frequency"),
                      help="samples per second, Hz (default: the file's, else every step)")
     run.add_argument("--out", help="output file, .csv or .parquet (replaced atomically)")
@@ -100,6 +100,29 @@ def _add_analysis_commands(commands) -> None:
                      help="bodies whose ride figures are reported, e.g. the seat (default: every body)")
     run.add_argument("--settle", type=_quantity_arg("time"), default=0.0,
                      help="leave the first part of the run out of the figures, s or with units")
+
+
+def _newmark_arguments(parser) -> None:
+    parser.add_argument("--beta", type=float, help="Newmark β (newmark only; default ¼, average acceleration)")
+    parser.add_argument("--gamma", type=float, help="Newmark γ (newmark only; default ½)")
+
+
+def _stepper(args, system):
+    """The stepper asked for: its id (or the file's [run] stepper), made a Newmark
+    stepper of its own when --beta or --gamma is given. Raises LumpedError for a bad
+    combination."""
+    from lumped.errors import LumpedError
+    from lumped.steppers import get_stepper
+
+    stepper_id = args.stepper or system.run.stepper
+    if args.beta is None and args.gamma is None:
+        return stepper_id
+    if stepper_id != "newmark":
+        raise LumpedError(f"--beta and --gamma apply to newmark only, not {stepper_id!r}")
+    try:
+        return get_stepper(stepper_id, beta=args.beta, gamma=args.gamma)
+    except ValueError as exc:
+        raise LumpedError(str(exc)) from None
 
 
 def _quantity_arg(dimension: str):
@@ -249,9 +272,10 @@ def cmd_check(args) -> int:
     if missing:
         print("\n".join(missing), file=sys.stderr)
         return EXIT_BAD_INPUT
+    stepper = _stepper(args, system)
     try:
-        stepper = get_stepper(stepper_id, beta=args.beta, gamma=args.gamma)
-    except (KeyError, ValueError) as exc:
+        stepper = get_stepper(stepper) if isinstance(stepper, str) else stepper
+    except KeyError as exc:
         print(f"lumped check: {exc.args[0]}", file=sys.stderr)
         return EXIT_BAD_INPUT
     verdict = check_step(assemble(system), stepper, dt, duration)
@@ -259,6 +283,9 @@ def cmd_check(args) -> int:
         _print_json(verdict.to_json())
     else:
         print(format_check(system.name, verdict))
+    if not verdict.runs:
+        print(f"lumped check: {stepper.id} cannot run this system: {verdict.notes[-1]}", file=sys.stderr)
+        return EXIT_BAD_INPUT
     return EXIT_OK if verdict.stable else EXIT_UNSTABLE
 
 
@@ -314,7 +341,7 @@ def cmd_run(args) -> int:
               f"(bodies: {', '.join(system.bodies)})", file=sys.stderr)  # fmt: skip
         return EXIT_BAD_INPUT
     bar = None if args.quiet or not sys.stderr.isatty() else _ProgressBar()
-    result = simulate(system, stepper=args.stepper, dt=args.dt, duration=args.duration,
+    result = simulate(system, stepper=_stepper(args, system), dt=args.dt, duration=args.duration,
                       output_rate=args.output_rate, progress=bar)  # fmt: skip
     if bar is not None:
         bar.close()
@@ -525,7 +552,9 @@ def format_modes(name: str, result) -> str:
 
 def format_check(name: str, verdict) -> str:
     state = "STABLE" if verdict.stable else "UNSTABLE"
-    if verdict.stable and verdict.dt > 2 * verdict.recommended_dt:
+    if not verdict.runs:
+        state += f", but {verdict.stepper} cannot run this system (see the note)"
+    elif verdict.stable and verdict.dt > 2 * verdict.recommended_dt:
         state += f", but {verdict.dt / verdict.recommended_dt:.3g}× the recommended dt (see its rule)"
     lines = [
         f"{name}: {verdict.stepper} at dt = {_seconds(verdict.dt)} over {verdict.duration:g} s "
@@ -590,13 +619,16 @@ def format_run(summary: dict) -> str:
     study = summary.get("convergence")
     if study:
         lines.append(f"  convergence ({study['method']})")
+        lines.append("    error: the largest deviation of any displacement or velocity over the samples, "
+                     "divided by that state's largest magnitude")
         for h, e in zip(study["dt"], study["error"], strict=True):
             lines.append(f"    dt = {_seconds(h):>12}  error {e:.3e}")
         order = study["observed_order"]
         lines.append(
-            f"    observed order {order:.2f} (declared {study['declared_order']})" if order is not None
+            f"    observed order {order:.2f} (declared {study['declared_order']}; the slope of a least-squares line "
+            "through log error against log dt)" if order is not None
             else "    observed order: errors at round-off, no slope to fit"
-        )
+        )  # fmt: skip
         lines += [f"    note: {note}" for note in study.get("notes", ())]
     return "\n".join(lines)
 

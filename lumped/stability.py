@@ -168,6 +168,8 @@ class StepCheck:
     ``max_stable_dt`` is ``None`` when no positive step is stable and ``inf`` when the
     stepper has no limit on this system; ``limiting_mode`` indexes ``modes``.
     ``source`` says whether exact eigenvalues or the stiffest-mode bound were used.
+    ``runs`` is False when the stepper cannot run this system (a linear-only stepper
+    on a system with nonlinear elements: a run is refused; the last note says why).
     """
 
     stepper: str
@@ -183,6 +185,7 @@ class StepCheck:
     source: str
     modes: list[ModeCheck] = field(repr=False)
     notes: list[str] = field(default_factory=list)
+    runs: bool = True
 
     def to_json(self) -> dict:
         limiting = self.modes[self.limiting_mode] if self.limiting_mode is not None else None
@@ -206,6 +209,7 @@ class StepCheck:
             "source": self.source,
             "modes": [m.to_json() for m in self.modes],
             "notes": self.notes,
+            "runs": self.runs,
         }  # fmt: skip
 
 
@@ -322,7 +326,8 @@ def check_step(
             f"no positive step is stable with {stepper.id}: it amplifies the undamped "
             f"{omega[limiting] / (2 * math.pi):.6g} Hz mode at any step"
         )
-    if matrices.nonlinear.count and not runs_nonlinear(stepper):
+    runs = not (matrices.nonlinear.count and not runs_nonlinear(stepper))
+    if not runs:
         notes.append(
             f"{stepper.id} runs linear systems only, and this system has nonlinear "
             "elements: a run with it is refused (use newmark, trapezoid, backward-euler, central-difference, "
@@ -347,6 +352,7 @@ def check_step(
         source=source,
         modes=modes,
         notes=notes,
+        runs=runs,
     )
 
 

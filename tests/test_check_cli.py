@@ -512,3 +512,19 @@ def test_a_stable_step_far_above_the_recommended_one_says_so_in_the_headline():
     assert code == 0 and data["dt"] > 2 * data["recommended_dt"]
     fine = run_cli("check", path, "--stepper", "newmark", "--dt", "1ms").stdout.splitlines()[0]
     assert fine.endswith(": STABLE")
+
+
+def test_a_stepper_that_cannot_run_the_system_exits_two_after_its_check():
+    # The exact (matrix-exponential) stepper runs linear systems only; the quarter-car
+    # demo (invented) has an end stop and a lifting tyre, so a run with it is refused:
+    # check says so in its headline and exits 2, as `lumped run` would, so that a
+    # script gating runs on check does not let it through.
+    result = run_cli("check", DEMOS / "quarter_car.toml", "--stepper", "exact", "--dt", "1ms")
+    assert result.returncode == 2
+    assert "exact cannot run this system" in result.stdout.splitlines()[0]
+    assert "runs linear systems only" in result.stderr and len(result.stderr.strip().splitlines()) == 1
+    verdict = json.loads(run_cli("check", DEMOS / "quarter_car.toml", "--stepper", "exact", "--dt", "1ms",
+                                 "--json").stdout)  # fmt: skip
+    assert verdict["runs"] is False
+    assert json.loads(run_cli("check", DEMOS / "quarter_car.toml", "--stepper", "rk4", "--dt", "1ms",
+                              "--json").stdout)["runs"] is True  # fmt: skip

@@ -315,3 +315,21 @@ def test_a_run_warns_of_an_unstable_step_and_a_bump_passed_between_steps(capsys,
     # A run that diverged has no figures, and says so.
     assert main(["run", str(path), "--dt", "0.1s", "--figures", "--json"]) == 3
     assert any("no figures" in w for w in json.loads(capsys.readouterr().out)["warnings"])
+
+
+def test_newmark_parameters_reach_the_run(tmp_path):
+    # Newmark with β = 0, γ = ½ is the central difference method (T. J. R. Hughes,
+    # The Finite Element Method, 1987, §9.1 [recalled from memory]): the run with
+    # --beta 0 --gamma 0.5 gives central difference's samples to rounding; the
+    # parameters apply to newmark only.
+    path = tmp_path / "seat.toml"
+    path.write_text(SEAT)
+    runs = {}
+    for name, options in (("newmark", ["--stepper", "newmark", "--beta", "0", "--gamma", "0.5"]),
+                          ("central", ["--stepper", "central-difference"])):  # fmt: skip
+        out = tmp_path / f"{name}.csv"
+        assert main(["run", str(path), *options, "--dt", "0.5ms", "--duration", "1s", "--out", str(out), "--quiet"]) == 0
+        runs[name] = pd.read_csv(out)
+    np.testing.assert_allclose(runs["newmark"]["seat.displacement [m]"], runs["central"]["seat.displacement [m]"],
+                               rtol=0, atol=1e-12)  # fmt: skip
+    assert main(["run", str(path), "--stepper", "rk4", "--beta", "0.3", "--out", str(tmp_path / "x.csv")]) == 2
