@@ -536,7 +536,8 @@ def format_modes(name: str, result) -> str:
             f"{mode.undamped_frequency_hz:.5g} Hz", _ratio(mode.damping_ratio), kind, shape,
         ])  # fmt: skip
     lines.append(
-        table(["mode", "natural", "damped", "undamped", "damping ratio", "kind", "largest shape entries"], rows)
+        table(["mode", "natural", "damped", "undamped", "damping ratio", "kind", "largest shape entries [kg^-1/2]"],
+              rows)  # fmt: skip
     )
     lines += ["", "Undamped modes: modal mass (shape scaled to unit largest entry), effective mass per support"]
     supports = list(result.effective_mass)
@@ -546,7 +547,8 @@ def format_modes(name: str, result) -> str:
         for j, (w, mm) in enumerate(zip(result.omega, result.modal_mass, strict=True))
     ]
     lines.append(table(["mode", "frequency", "modal mass", *[f"effective mass ({s})" for s in supports]], rows))
-    lines.append("  natural = |λ|/2π of the damped eigenvalue; damping ratio = −Re λ/|λ|")
+    lines.append("  natural = |λ|/2π of the damped eigenvalue; damping ratio = −Re λ/|λ|; shape entries of the "
+                 "mass-normalised undamped shape (φᵀMφ = 1)")
     return "\n".join(lines)
 
 
