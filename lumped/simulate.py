@@ -64,7 +64,7 @@ from lumped.steppers import (
     implicit_coefficients,
 )
 
-__all__ = ["RunError", "Event", "RunResult", "Prepared", "prepare", "prepare_copies", "simulate", "ADAPTIVE_METHODS", "BALANCE_WARNING", "CHUNK_STEPS"]
+__all__ = ["RunError", "Event", "RunResult", "Prepared", "prepare", "prepare_copies", "simulate", "motion_channels", "channels_frame", "ADAPTIVE_METHODS", "BALANCE_WARNING", "CHUNK_STEPS"]
 
 #: Steps per compiled chunk between the driver's progress/cancel/divergence checks.
 CHUNK_STEPS = 8192
@@ -205,14 +205,7 @@ class RunResult:
 
     def channels(self) -> dict[str, tuple[str, np.ndarray]]:
         """Every output channel as ``"ID.quantity" → (unit, values)``, time first."""
-        out: dict[str, tuple[str, np.ndarray]] = {"time": ("s", self.time)}
-        for i, body in enumerate(self.body_ids):
-            out[f"{body}.displacement"] = ("m", self.displacement[:, i])
-            out[f"{body}.velocity"] = ("m/s", self.velocity[:, i])
-            out[f"{body}.acceleration"] = ("m/s^2", self.acceleration[:, i])
-        for e, element in enumerate(self.element_ids):
-            out[f"{element}.force"] = ("N", self.force[:, e])
-            out[f"{element}.deflection"] = ("m", self.deflection[:, e])
+        out = motion_channels(self)
         for s, support in enumerate(self.support_ids):
             out[f"{support}.displacement"] = ("m", self.support_displacement[:, s])
             out[f"{support}.velocity"] = ("m/s", self.support_velocity[:, s])
@@ -225,11 +218,30 @@ class RunResult:
 
     def to_frame(self):
         """The channels as a pandas DataFrame with ``"ID.quantity [unit]"`` columns."""
-        import pandas as pd
+        return channels_frame(self.channels())
 
-        return pd.DataFrame(
-            {f"{name} [{unit}]": values for name, (unit, values) in self.channels().items()}
-        )
+
+def motion_channels(run) -> dict[str, tuple[str, np.ndarray]]:
+    """Time, then every body's displacement, velocity and acceleration and every
+    element's force and deflection of ``run`` (a :class:`RunResult` or one variant
+    of a batch), as ``"ID.quantity" → (unit, values)``."""
+    out: dict[str, tuple[str, np.ndarray]] = {"time": ("s", run.time)}
+    for i, body in enumerate(run.body_ids):
+        out[f"{body}.displacement"] = ("m", run.displacement[:, i])
+        out[f"{body}.velocity"] = ("m/s", run.velocity[:, i])
+        out[f"{body}.acceleration"] = ("m/s^2", run.acceleration[:, i])
+    for e, element in enumerate(run.element_ids):
+        out[f"{element}.force"] = ("N", run.force[:, e])
+        out[f"{element}.deflection"] = ("m", run.deflection[:, e])
+    return out
+
+
+def channels_frame(channels: dict[str, tuple[str, np.ndarray]]):
+    """Channels (``"ID.quantity" → (unit, values)``) as a pandas DataFrame with
+    ``"ID.quantity [unit]"`` columns."""
+    import pandas as pd
+
+    return pd.DataFrame({f"{name} [{unit}]": values for name, (unit, values) in channels.items()})
 
 
 # --------------------------------------------------------------------------- set-up

@@ -20,7 +20,15 @@ import numpy as np
 
 from lumped.errors import LumpedError
 from lumped.model import System, check_system
-from lumped.simulate import Event, RunResult, prepare, prepare_copies, simulate
+from lumped.simulate import (
+    Event,
+    RunResult,
+    channels_frame,
+    motion_channels,
+    prepare,
+    prepare_copies,
+    simulate,
+)
 
 __all__ = ["VariantError", "VariantRun", "VariantRuns", "variant_system", "simulate_variants"]
 
@@ -139,6 +147,14 @@ class VariantRun:
     events: list[Event]
     status: str
     message: str
+
+    def channels(self) -> dict[str, tuple[str, np.ndarray]]:
+        """Time and the variant's body and element channels, ``"ID.quantity" → (unit, values)``."""
+        return motion_channels(self)
+
+    def to_frame(self):
+        """The channels as a pandas DataFrame with ``"ID.quantity [unit]"`` columns."""
+        return channels_frame(self.channels())
 
 
 def _by_variant(array: np.ndarray, count: int) -> np.ndarray:

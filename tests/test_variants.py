@@ -198,3 +198,17 @@ def test_runs_and_batches_pickle_before_and_after_their_element_channels_are_rea
     single = simulate(system, "rk4", 1e-3, 0.3)
     single.force  # noqa: B018 (read, so that the worked-out channels pickle too)
     np.testing.assert_array_equal(pickle.loads(pickle.dumps(single)).stored, single.stored)
+
+
+def test_a_variants_frame_holds_the_columns_of_its_own_runs_frame():
+    # One variant of a batch as a table: the body and element columns of the
+    # variant's own run, same labels and values (the support, force and energy
+    # columns are the batch's, not one variant's).
+    system = lumped.load(lumped.demo_path("quarter_car"))
+    changes = {"springs.suspension_spring.stiffness": [18e3, 30e3]}
+    runs = simulate_variants(system, changes, "rk4", dt=1e-3, duration=0.5, output_rate=200)
+    frame = runs.variant(1).to_frame()
+    single = simulate(runs.system(1), "rk4", dt=1e-3, duration=0.5, output_rate=200).to_frame()
+    assert list(frame.columns) == [c for c in single.columns if c in frame.columns]
+    assert "body.displacement [m]" in frame.columns and "tyre.force [N]" in frame.columns
+    np.testing.assert_array_equal(frame.to_numpy(), single[frame.columns].to_numpy())
