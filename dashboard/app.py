@@ -226,6 +226,8 @@ def system_tab(view: dict) -> None:
     st.subheader("Elements", anchor=False)
     st.dataframe(
         view["elements"], hide_index=True, key="elements",
+        # the long description last: on a narrow screen it is what runs out of room, not a number
+        column_order=["id", "kind", "between", "static force", "static deflection", "values"],
         column_config={
             "id": _text_column("id", 160),
             "kind": _text_column("kind", 80),
