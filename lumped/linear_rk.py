@@ -282,11 +282,9 @@ def rk_maps(lanes: Lanes, a: np.ndarray, b: np.ndarray, stage_col: np.ndarray, c
         return np.ascontiguousarray(np.moveaxis(x, -1, 0))
 
     return RKMaps(
-        step=blocked(np.concatenate([rows(step[:, :nz]), rows(step[:, kept])])),
-        sample=blocked(np.concatenate([rows(A[n:]), rows(acc_w[:, kept]),
-                                       rows(energy[:, zi, zj] * doubled(zi, zj)),
-                                       rows(2.0 * energy[:, :nz][:, :, kept]),
-                                       rows(energy[:, kept[wi], kept[wj]] * doubled(wi, wj))])),  # fmt: skip
+        step=blocked(rows(step[:, :nz]), rows(step[:, kept])),
+        sample=blocked(rows(A[n:]), rows(acc_w[:, kept]), rows(energy[:, zi, zj] * doubled(zi, zj)),
+                       rows(2.0 * energy[:, :nz][:, :, kept]), rows(energy[:, kept[wi], kept[wj]] * doubled(wi, wj))),
         inputs=tuple((c, *kinds[k]) for c, k in keep),
         rates=tuple(int(p) for p in np.flatnonzero(np.any(energy != 0, axis=(1, 2, 3)))),
         free_step=first(step[:, :nz]),
@@ -500,13 +498,22 @@ def free_work(maps: FreeMaps) -> tuple:
     return np.zeros((nz, count)), np.zeros((nz // 2, count)), np.zeros(3)
 
 
-def blocked(rows: np.ndarray) -> np.ndarray:
-    """(rows, lanes) → flat (blocks, rows, :data:`LANE_BLOCK`), padded with zero lanes."""
-    count = rows.shape[1]
-    blocks = -(-count // LANE_BLOCK)
-    padded = np.zeros((rows.shape[0], blocks * LANE_BLOCK))
-    padded[:, :count] = rows
-    return np.ascontiguousarray(padded.reshape(rows.shape[0], blocks, LANE_BLOCK).transpose(1, 0, 2)).ravel()
+def blocked(*parts: np.ndarray) -> np.ndarray:
+    """Rows (rows, lanes) — of one array or of several, one after another — as a flat
+    (blocks, rows, :data:`LANE_BLOCK`) array, padded with zero lanes; written in one
+    pass, each part straight into its place."""
+    count = parts[0].shape[1]
+    blocks, full = -(-count // LANE_BLOCK), count // LANE_BLOCK
+    out = np.empty((blocks, sum(part.shape[0] for part in parts), LANE_BLOCK))
+    if full < blocks:
+        out[full] = 0.0
+    row = 0
+    for part in parts:
+        rows = part.shape[0]
+        out[:full, row : row + rows] = part[:, : full * LANE_BLOCK].reshape(rows, full, LANE_BLOCK).transpose(1, 0, 2)
+        out[full:, row : row + rows, : count - full * LANE_BLOCK] = part[:, full * LANE_BLOCK :]
+        row += rows
+    return out.ravel()
 
 
 def _grid(flat: np.ndarray, count: int) -> np.ndarray:
