@@ -454,12 +454,7 @@ def free_chunk(phi, form, first, second, rates, acc, z, work, energy, k0, interv
                 for lane in range(count):
                     gained += form[rates[r], t, lane] * z[a, lane] * z[b, lane]
             gains[r] = gained
-        for a in range(nz):
-            for lane in range(count):
-                spare[a, lane] = 0.0
-            for b in range(nz):
-                for lane in range(count):
-                    spare[a, lane] += phi[a, b, lane] * z[b, lane]
+        _lane_products(phi, z, spare)
         fine = True
         for a in range(n):
             for lane in range(count):
@@ -473,12 +468,7 @@ def free_chunk(phi, form, first, second, rates, acc, z, work, energy, k0, interv
         for r in range(nr):
             energy[rates[r]] += gains[r]
         if m < capacity:
-            for r in range(n):
-                for lane in range(count):
-                    slope[r, lane] = 0.0
-                for b in range(nz):
-                    for lane in range(count):
-                        slope[r, lane] += acc[r, b, lane] * z[b, lane]
+            _lane_products(acc, z, slope)
             for lane in range(count):
                 for r in range(n):
                     out_q[m, lane * n + r] = z[r, lane]
@@ -490,6 +480,18 @@ def free_chunk(phi, form, first, second, rates, acc, z, work, energy, k0, interv
             m += 1
     restore_float_mode(mode)
     return 0, intervals, m
+
+
+@njit(inline="always", **REORDERED)
+def _lane_products(matrix, z, out):
+    """out[r] = Σ_b matrix[r, b] z[b] in every lane (the lane index innermost)."""
+    count = z.shape[1]
+    for r in range(out.shape[0]):
+        for lane in range(count):
+            out[r, lane] = 0.0
+        for b in range(z.shape[0]):
+            for lane in range(count):
+                out[r, lane] += matrix[r, b, lane] * z[b, lane]
 
 
 def free_work(maps: FreeMaps) -> tuple:

@@ -234,10 +234,9 @@ _COPY_FIELDS = {
 }
 
 
-def _copyable(system: System, path: str) -> bool:
-    """True when the change ``path`` is a value of the assembled matrices (not a gap,
-    a rebound coefficient, an initial displacement, …)."""
-    group, item_id, field = _parse(path, system)
+def _copyable(system: System, group: str, item_id: str, field: str) -> bool:
+    """True when the change of ``group.item_id.field`` is a value of the assembled
+    matrices (not a gap, a rebound coefficient, an initial displacement, …)."""
     return (group, field) in _COPY_FIELDS and not (group == "dampers" and system.dampers[item_id].coefficient is None)
 
 
@@ -279,21 +278,19 @@ def simulate_variants(
         raise VariantError("supports are shared by every variant; vary bodies, elements or forces")
     if len(lengths) != 1 or 0 in lengths:
         raise VariantError(f"every change needs the same, non-zero number of values; got {sorted(lengths)}")
+    parsed = {path: _parse(path, system) for path in values}
     for path, v in values.items():
-        _parse(path, system)
         if not np.all(np.isfinite(v)):
             raise VariantError(f"variant change {path!r}: every value must be finite")
     count = lengths.pop()
     _refuse(check_system(system), str)
     settings = (stepper, dt, duration, output_rate, output_every)
     prefixes = [_prefix(i) for i in range(count)]
-    if all(_copyable(system, path) for path in values) and _values_fit(system, values):
+    if all(_copyable(system, *parts) for parts in parsed.values()) and _values_fit(system, values):
         # Every change is a value of the assembled matrices: the copies are made from the
         # system's assembly by array operations (no system of copies is built).
-        changes = {}
-        for path, v in values.items():
-            group, item_id, field = _parse(path, system)
-            changes[_COPY_FIELDS[group, field], item_id] = v
+        changes = {(_COPY_FIELDS[group, field], item_id): values[path]
+                   for path, (group, item_id, field) in parsed.items()}  # fmt: skip
         prepared = prepare_copies(system, prefixes, changes)
     else:
         stacked = _stacked(system, values, count)
